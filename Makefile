@@ -1,0 +1,27 @@
+# Two entry points: `make demo` and `make test`. Each creates .venv on first use and installs the
+# project (with its test extra) from pyproject.toml.
+PYTHON ?= python3
+VENV := .venv
+BIN := $(VENV)/bin
+STAMP := $(VENV)/.installed
+
+.PHONY: demo test lint bench clean
+
+$(STAMP): pyproject.toml
+	test -x $(BIN)/python || $(PYTHON) -m venv $(VENV)
+	$(BIN)/python -m pip install --quiet --upgrade pip
+	$(BIN)/python -m pip install --quiet -e ".[test]"
+	touch $(STAMP)
+
+demo: $(STAMP)
+	$(BIN)/mapper demo --out demo_out
+
+test: $(STAMP)
+	$(BIN)/ruff check mapper tests benchmarks sample_sites
+	$(BIN)/python -m pytest
+
+bench: $(STAMP)
+	$(BIN)/python benchmarks/field.py
+
+clean:
+	rm -rf $(VENV) demo_out .pytest_cache

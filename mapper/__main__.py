@@ -1,0 +1,3 @@
+from mapper.cli.main import main
+
+raise SystemExit(main())

@@ -1,0 +1,20 @@
+"""``mapper demo``: run the whole job on the bundled indoor sample site."""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+from mapper.cli.common import say
+from mapper.demo import run_demo
+
+
+def register(sub) -> None:
+    p = sub.add_parser("demo", help="run everything on the bundled indoor sample site")
+    p.add_argument("--out", default="demo_out", help="output folder (default demo_out)")
+    p.set_defaults(func=run)
+
+
+def run(args) -> int:
+    for line in run_demo(Path(args.out)):
+        say(line)
+    return 0

@@ -1,0 +1,69 @@
+"""``mapper import``: load readings from a CSV file into a survey."""
+
+from __future__ import annotations
+
+import os
+import sys
+import time
+from zoneinfo import ZoneInfo, ZoneInfoNotFoundError
+
+from mapper.cli.common import say, unit_arg, warn
+from mapper.errors import MapperError
+from mapper.readings.importing import (
+    is_conditions_csv,
+    parse_conditions_csv,
+    parse_readings_csv,
+    write_rejected,
+)
+from mapper.survey.store import Survey
+
+
+def register(sub) -> None:
+    p = sub.add_parser("import", help="import readings (or condition notes) from a CSV file, all or nothing")
+    p.add_argument("survey", help="survey file")
+    p.add_argument("file", help="CSV with x,y (or lon,lat),value[,unit,time,height_m,note,kind,meter,point]")
+    p.add_argument("--unit", type=unit_arg, help="unit of values without a unit column")
+    p.add_argument("--skip-bad", action="store_true", help="import good rows; write bad ones beside the input")
+    p.add_argument("--tz", default=None, help="time zone of times written without an offset (default UTC)")
+    p.set_defaults(func=run)
+
+
+def run(args) -> int:
+    tz = None
+    if args.tz:
+        try:
+            tz = ZoneInfo(args.tz)
+        except (ZoneInfoNotFoundError, ValueError):
+            raise MapperError(f"unknown time zone {args.tz!r}; use a name like Europe/Berlin") from None
+    with Survey.open(args.survey, write=True) as survey:
+        if is_conditions_csv(args.file):
+            notes = parse_conditions_csv(args.file, tz)
+            survey.add_condition_notes([(n.rh_percent, n.temperature_c, n.note, n.time) for n in notes])
+            say(f"imported {len(notes)} condition notes into {survey.path}")
+            return 0
+        parsed = parse_readings_csv(
+            args.file,
+            survey.site,
+            unit=args.unit or None,
+            sign_convention=survey.sign_convention,
+            plan_labels=[p.label for p in survey.plan.points],
+            meters=list(survey.meters()),
+            skip_bad=args.skip_bad,
+            tz=tz,
+        )
+        delay = float(os.environ.get("MAPPER_TEST_IMPORT_DELAY", "0") or 0)
+        if delay:  # test hook: slow the open transaction down so a test can kill the process in it
+            survey.conn.set_progress_handler(lambda: _slow_down(survey, delay), 1000)
+        stored = survey.add_readings(parsed.readings, source=os.path.basename(args.file))
+        if parsed.rejected:
+            out = write_rejected(args.file, parsed.rejected)
+            warn(f"{len(parsed.rejected)} bad rows not imported; see {out}")
+        say(f"imported {len(stored)} readings into {survey.path}")
+    return 0
+
+
+def _slow_down(survey: Survey, delay: float) -> int:
+    if survey.conn.in_transaction:
+        print("mapper: import transaction open", file=sys.stderr, flush=True)
+        time.sleep(delay)
+    return 0

@@ -1,0 +1,61 @@
+"""``mapper info``: what a survey holds."""
+
+from __future__ import annotations
+
+import json
+
+from mapper.cli.common import say
+from mapper.survey.store import Survey
+from mapper.survey.summary import summarise
+from mapper.units import format_field
+
+
+def register(sub) -> None:
+    p = sub.add_parser("info", help="show a survey's site, plan, readings and conditions")
+    p.add_argument("survey", help="survey file")
+    p.add_argument("--json", action="store_true", help="print JSON instead of text")
+    p.set_defaults(func=run)
+
+
+def run(args) -> int:
+    with Survey.open(args.survey) as survey:
+        info = summarise(survey)
+    if args.json:
+        say(json.dumps(info, indent=2))
+        return 0
+    unit = info["display_unit"]
+    site = info["site"]
+    say(f"survey    {info['name']}  ({info['file']})")
+    say(f"site      {site['area_m2']:.1f} m², {site['assets']} assets, {site['zones']} zones")
+    if site["georeferenced"]:
+        say(
+            f"georef    {site['crs']}, scale {site['georef_scale']:.6f}, rotation "
+            f"{site['georef_rotation_deg']:.3f}°, RMS {site['georef_rms_m']:.3f} m"
+        )
+    else:
+        say("georef    none (local site grid in metres)")
+    plan = info["plan"]
+    say(f"plan      {info['points']} points, {plan['layout']} at {plan['spacing_m']:g} m, walk {plan['walk_length_m']:.0f} m")
+    say(f"visited   {info['visited']} of {info['points']} points")
+    kinds = ", ".join(f"{k} {v}" for k, v in sorted(info["readings_by_kind"].items())) or "none"
+    say(f"readings  {info['readings']} field readings ({kinds}; {info['free_position_readings']} off-grid; "
+        f"{info['superseded']} superseded rows kept)")
+    if info["time_span"]:
+        say(f"time      {info['time_span'][0]} .. {info['time_span'][1]} (UTC)")
+    say(f"units     {unit}, sign convention {info['sign_convention']}, "
+        f"threshold {format_field(info['threshold_v_per_m'], unit)}")
+    cond = info["conditions"]
+    if cond["notes"]:
+        rh = cond["rh_percent"]
+        t = cond["temperature_c"]
+        say(
+            f"conditions {cond['notes']} notes"
+            + (f", RH {rh[0]:g}-{rh[1]:g} %" if rh else "")
+            + (f", {t[0]:g}-{t[1]:g} °C" if t else "")
+        )
+    else:
+        say("conditions none recorded")
+    say(f"meters    {', '.join(info['meters'])}")
+    for message in site["warnings"]:
+        say(f"warning   {message}")
+    return 0

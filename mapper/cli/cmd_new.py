@@ -1,0 +1,71 @@
+"""``mapper new``: create a survey file and plan its grid."""
+
+from __future__ import annotations
+
+from mapper.cli.common import positive_float, role_arg, say, threshold_arg, unit_arg, warn
+from mapper.plan.grid import DEFAULT_SPACING_M, LAYOUTS
+from mapper.survey.create import DEFAULT_THRESHOLD_V_PER_M, create_survey
+from mapper.units import SIGN_CONVENTIONS, format_field
+
+
+def register(sub) -> None:
+    p = sub.add_parser("new", help="create a survey from a site file and plan its walking grid")
+    p.add_argument("survey", help="survey file to create (e.g. hall3.survey)")
+    p.add_argument("--site", required=True, help="site file (.toml) or vector file (.gpkg, .geojson, .shp, .dxf)")
+    p.add_argument(
+        "--spacing", type=positive_float, default=DEFAULT_SPACING_M,
+        help=f"grid spacing in metres (default {DEFAULT_SPACING_M})",
+    )
+    p.add_argument("--layout", choices=LAYOUTS, default="square", help="grid layout (default square)")
+    p.add_argument("--unit", type=unit_arg, default="V/m", help="display and entry unit (default V/m)")
+    p.add_argument(
+        "--sign", choices=SIGN_CONVENTIONS, default="physics",
+        help="sign convention of the meter: physics (upward field positive; default) or atmospheric",
+    )
+    p.add_argument(
+        "--threshold", type=threshold_arg, default=DEFAULT_THRESHOLD_V_PER_M,
+        help="action level with unit (default 125 V/in)",
+    )
+    p.add_argument("--operator", default="", help="who surveys")
+    p.add_argument(
+        "--role", type=role_arg, action="append", default=[], metavar="LAYER=ROLE",
+        help="for vector site files: role of a layer (outline, zone, ignore or an asset kind)",
+    )
+    p.set_defaults(func=run)
+
+
+def run(args) -> int:
+    with create_survey(
+        args.survey,
+        args.site,
+        spacing_m=args.spacing,
+        layout=args.layout,
+        display_unit=args.unit,
+        sign_convention=args.sign,
+        threshold_v_per_m=args.threshold,
+        roles=dict(args.role),
+        operator=args.operator,
+    ) as survey:
+        site, plan = survey.site, survey.plan
+        for message in site.warnings:
+            warn(message)
+        say(f"created {survey.path} for site {site.name!r} ({site.area_m2:.1f} m²)")
+        if site.georef:
+            g = site.georef
+            residuals = ", ".join(f"{r:.3f}" for r in g.residuals_m) or "-"
+            say(
+                f"georeference: {g.crs}, scale {g.scale:.6f}, rotation {g.rotation_deg:.3f}°, "
+                f"residuals [{residuals}] m, RMS {g.rms_m:.3f} m"
+            )
+        else:
+            say("georeference: none (local site grid in metres)")
+        say(
+            f"plan: {len(plan.points)} points, {plan.layout} grid at {plan.spacing_m:g} m, "
+            f"covering {plan.covered_area_m2():.0f} m², walk {plan.walk_length_m:.0f} m "
+            f"from {plan.points[0].label} to {plan.points[-1].label}"
+        )
+        say(
+            f"unit {survey.display_unit}, sign {survey.sign_convention}, "
+            f"threshold {format_field(survey.threshold_v_per_m, survey.display_unit)}"
+        )
+    return 0

@@ -1,0 +1,76 @@
+"""Helpers shared by the sub-commands: argument types, printing, opening surveys."""
+
+from __future__ import annotations
+
+import argparse
+import sys
+from collections.abc import Sequence
+
+from mapper.errors import MapperError
+from mapper.units import canonical_unit, format_field, parse_threshold
+
+
+class Parser(argparse.ArgumentParser):
+    """An argument parser whose errors are one line, with the command named."""
+
+    def error(self, message: str) -> None:  # pragma: no cover - exercised through main()
+        self.exit(2, f"{self.prog}: error: {message} (see {self.prog} --help)\n")
+
+
+def unit_arg(text: str) -> str:
+    """argparse type: a field unit."""
+    try:
+        return canonical_unit(text)
+    except MapperError as exc:
+        raise argparse.ArgumentTypeError(exc.message) from None
+
+
+def threshold_arg(text: str) -> float:
+    """argparse type: an action level with unit, returned in V/m."""
+    try:
+        return parse_threshold(text)
+    except MapperError as exc:
+        raise argparse.ArgumentTypeError(exc.message) from None
+
+
+def positive_float(text: str) -> float:
+    """argparse type: a positive finite number."""
+    try:
+        value = float(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"{text!r} is not a number") from None
+    if not (value > 0 and value < float("inf")):
+        raise argparse.ArgumentTypeError(f"{text!r} must be a positive number")
+    return value
+
+
+def role_arg(text: str) -> tuple[str, str]:
+    """argparse type: ``LAYER=ROLE``."""
+    if "=" not in text:
+        raise argparse.ArgumentTypeError(f"{text!r} should be LAYER=ROLE, e.g. boundary=outline")
+    layer, role = text.split("=", 1)
+    return layer.strip(), role.strip()
+
+
+def say(*parts: object) -> None:
+    """Print to standard output."""
+    print(*parts)
+
+
+def warn(message: str) -> None:
+    """Print a warning line to standard error."""
+    print(f"mapper: warning: {message}", file=sys.stderr)
+
+
+def table(rows: Sequence[Sequence[object]], header: Sequence[str]) -> str:
+    """Format a plain text table with aligned columns."""
+    cells = [[str(h) for h in header]] + [[str(c) for c in row] for row in rows]
+    widths = [max(len(r[i]) for r in cells) for i in range(len(header))]
+    lines = ["  ".join(c.ljust(w) for c, w in zip(r, widths, strict=True)).rstrip() for r in cells]
+    lines.insert(1, "  ".join("-" * w for w in widths))
+    return "\n".join(lines)
+
+
+def fmt(value_v_per_m: float | None, unit: str) -> str:
+    """A field value in the display unit, or a dash."""
+    return "-" if value_v_per_m is None else format_field(value_v_per_m, unit)

@@ -1,0 +1,43 @@
+"""The demo: the indoor sample site from survey file to hand-over, through the public commands."""
+
+from __future__ import annotations
+
+from collections.abc import Iterator
+from pathlib import Path
+
+from mapper.errors import MapperError
+
+SAMPLES = Path(__file__).resolve().parent.parent / "sample_sites"
+
+
+def run_demo(out: Path, samples: Path = SAMPLES) -> Iterator[str]:
+    """Run each stage on the North Hall sample and yield a line per thing written.
+
+    Parameters
+    ----------
+    out : Path
+        Output folder; its earlier demo survey is replaced.
+    samples : Path
+        Folder holding the sample site files.
+    """
+    from mapper.cli.main import main
+
+    site = samples / "north_hall.toml"
+    if not site.exists():
+        raise MapperError("sample site not found (run from a clone of the repository)", where=str(site))
+    out.mkdir(parents=True, exist_ok=True)
+    survey = out / "north_hall.survey"
+    for stale in (survey, Path(f"{survey}-wal"), Path(f"{survey}-shm")):
+        stale.unlink(missing_ok=True)
+    steps = [
+        ["new", str(survey), "--site", str(site), "--spacing", "2", "--unit", "kV/m", "--operator", "demo"],
+        ["import", str(survey), str(samples / "north_hall_conditions.csv")],
+        ["import", str(survey), str(samples / "north_hall_readings.csv")],
+        ["info", str(survey)],
+    ]
+    for argv in steps:
+        yield f"$ mapper {' '.join(argv)}"
+        status = main(argv)
+        if status:
+            raise MapperError(f"demo step 'mapper {argv[0]}' failed with status {status}")
+    yield f"wrote {survey}"

@@ -1,0 +1,293 @@
+"""Import readings from CSV: every row checked, all or nothing unless told to skip bad rows."""
+
+from __future__ import annotations
+
+import csv
+import math
+from collections.abc import Sequence
+from dataclasses import dataclass
+from datetime import UTC, datetime, tzinfo
+from pathlib import Path
+
+import numpy as np
+import shapely
+
+from mapper.errors import MapperError
+from mapper.readings.model import READING_KINDS
+from mapper.site.model import Site
+from mapper.survey.store import NewReading
+from mapper.units import check_field, parse_field, parse_number, to_physics_sign
+
+#: Readings this far outside the outline are still accepted (meter held over a wall line), metres.
+OUTLINE_TOLERANCE_M = 0.05
+
+
+@dataclass(frozen=True)
+class RejectedRow:
+    """A CSV row that was not imported.
+
+    Attributes
+    ----------
+    line : int
+        Line number in the file (header is line 1).
+    row : dict
+        The row as read.
+    reason : str
+        Why it was refused.
+    """
+
+    line: int
+    row: dict
+    reason: str
+
+
+@dataclass(frozen=True)
+class ParsedFile:
+    """Readings parsed from a file, ready for :meth:`Survey.add_readings`.
+
+    Attributes
+    ----------
+    readings : list of NewReading
+        Good rows.
+    rejected : list of RejectedRow
+        Bad rows (empty unless skipping bad rows).
+    """
+
+    readings: list[NewReading]
+    rejected: list[RejectedRow]
+
+
+def parse_time(text: str, tz: tzinfo | None = None) -> datetime:
+    """Parse ISO 8601 time; text without an offset is taken in ``tz`` (default UTC)."""
+    try:
+        moment = datetime.fromisoformat(text.strip().replace("Z", "+00:00"))
+    except ValueError:
+        raise MapperError(f"{text!r} is not an ISO 8601 time (e.g. 2026-03-04T09:15:00Z)") from None
+    if moment.tzinfo is None:
+        moment = moment.replace(tzinfo=tz or UTC)
+    return moment.astimezone(UTC)
+
+
+def site_xy_from_lonlat(site: Site, lon: np.ndarray, lat: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """WGS 84 lon/lat (degrees) to site metres, through the site's georeference."""
+    from pyproj import Transformer
+
+    if site.georef is None:
+        raise MapperError("site has no georeference; give x,y columns or add control points to the site")
+    transformer = Transformer.from_crs("EPSG:4326", site.georef.crs, always_xy=True)
+    e, n = transformer.transform(np.asarray(lon, float), np.asarray(lat, float))
+    return site.georef.inverse(e, n)
+
+
+def parse_readings_csv(
+    path: str | Path,
+    site: Site,
+    *,
+    unit: str | None = None,
+    sign_convention: str = "physics",
+    plan_labels: Sequence[str] = (),
+    meters: Sequence[str] = (),
+    skip_bad: bool = False,
+    tz: tzinfo | None = None,
+) -> ParsedFile:
+    """Read and check a readings CSV.
+
+    Columns: ``x,y`` (site units after loading, i.e. metres) or ``lon,lat`` (WGS 84 degrees),
+    ``value``, ``unit`` (or ``unit`` argument), and optionally ``time`` (ISO 8601), ``height_m``,
+    ``note``, ``kind`` (field, reference, zero, calibration), ``meter``, ``point``.
+
+    Parameters
+    ----------
+    path : str or Path
+        CSV file, UTF-8, header row first.
+    site : Site
+        Site the readings belong to (positions are checked against its outline).
+    unit : str, optional
+        Field unit for rows without a ``unit`` column value.
+    sign_convention : str
+        How the values are signed (the survey's convention).
+    plan_labels : sequence of str
+        Plan point labels accepted in a ``point`` column.
+    meters : sequence of str
+        Meter ids accepted in a ``meter`` column.
+    skip_bad : bool
+        Keep good rows and return bad ones in ``rejected`` instead of raising at the first.
+    tz : tzinfo, optional
+        Time zone for times written without an offset (default UTC).
+    """
+    path = Path(path)
+    if not path.exists():
+        raise MapperError("file not found", where=str(path))
+    try:
+        text = path.read_text(encoding="utf-8-sig")
+    except UnicodeDecodeError as exc:
+        raise MapperError(f"not UTF-8 text ({exc.reason} at byte {exc.start})", where=str(path)) from None
+    reader = csv.DictReader(text.splitlines())
+    fields = [f.strip() for f in (reader.fieldnames or [])]
+    if not fields:
+        raise MapperError("empty file; expected a header row such as x,y,value,unit", where=str(path))
+    reader.fieldnames = fields
+    has_xy = {"x", "y"} <= set(fields)
+    has_ll = {"lon", "lat"} <= set(fields)
+    if not (has_xy or has_ll):
+        raise MapperError("header needs x,y or lon,lat columns", where=f"{path}:1")
+    if "value" not in fields:
+        raise MapperError("header needs a 'value' column", where=f"{path}:1")
+    if "unit" not in fields and unit is None:
+        raise MapperError("no 'unit' column; add one or pass --unit", where=f"{path}:1")
+    labels = set(plan_labels)
+    meter_ids = set(meters)
+    outline = site.outline
+    shapely.prepare(outline)
+    good: list[NewReading] = []
+    rejected: list[RejectedRow] = []
+    raw_rows = list(reader)
+    lonlat_xy = None
+    if has_ll and not has_xy:
+        lon = np.array([_float_or_nan(r.get("lon")) for r in raw_rows])
+        lat = np.array([_float_or_nan(r.get("lat")) for r in raw_rows])
+        try:
+            lonlat_xy = site_xy_from_lonlat(site, lon, lat)
+        except MapperError as exc:
+            raise MapperError(exc.message, where=f"{path}:1") from None
+    for index, row in enumerate(raw_rows):
+        line = index + 2
+        column = ""
+        try:
+            if None in row:
+                raise _RowError("", f"{len(row[None]) + len(fields)} fields, header has {len(fields)}")
+            if lonlat_xy is not None:
+                column = "lon"
+                for name in ("lon", "lat"):
+                    column = name
+                    parse_number(row[name])
+                x, y = float(lonlat_xy[0][index]), float(lonlat_xy[1][index])
+            else:
+                column = "x"
+                x = parse_number(row["x"])
+                column = "y"
+                y = parse_number(row["y"])
+            column = "x" if lonlat_xy is None else "lon"
+            if outline.distance(shapely.Point(x, y)) > OUTLINE_TOLERANCE_M:
+                raise _RowError(column, f"position ({x:.2f}, {y:.2f}) m is outside the site outline")
+            column = "value"
+            row_unit = (row.get("unit") or "").strip() or unit
+            value, value_unit, si = parse_field(row["value"], row_unit)
+            column = "kind"
+            kind = (row.get("kind") or "field").strip() or "field"
+            if kind not in READING_KINDS:
+                raise _RowError("kind", f"unknown kind {kind!r}; accepted: {', '.join(READING_KINDS)}")
+            column = "time"
+            time = parse_time(row["time"], tz) if (row.get("time") or "").strip() else None
+            column = "height_m"
+            height = parse_number(row["height_m"]) if (row.get("height_m") or "").strip() else None
+            if height is not None and not 0 <= height <= 50:
+                raise _RowError("height_m", f"height {height} m is outside 0-50 m")
+            column = "point"
+            point = (row.get("point") or "").strip() or None
+            if point is not None and point not in labels:
+                raise _RowError("point", f"no plan point labelled {point!r}")
+            column = "meter"
+            meter = (row.get("meter") or "").strip() or None
+            if meter is not None and meter_ids and meter not in meter_ids:
+                raise _RowError("meter", f"unknown meter {meter!r}; known: {', '.join(sorted(meter_ids))}")
+            good.append(
+                NewReading(
+                    x=x,
+                    y=y,
+                    entered_value=value,
+                    entered_unit=value_unit,
+                    value_v_per_m=check_field(to_physics_sign(si, sign_convention)),
+                    kind=kind,
+                    point=point,
+                    time=time,
+                    height_m=height,
+                    meter_id=meter,
+                    note=(row.get("note") or "").strip(),
+                )
+            )
+        except (MapperError, _RowError) as exc:
+            col = exc.column if isinstance(exc, _RowError) else column
+            reason = exc.message
+            if not skip_bad:
+                raise MapperError(reason, where=f"{path}:{line}: {col}" if col else f"{path}:{line}") from None
+            rejected.append(RejectedRow(line, dict(row), f"{col}: {reason}" if col else reason))
+    if not good and not rejected:
+        raise MapperError("no data rows", where=str(path))
+    return ParsedFile(good, rejected)
+
+
+def write_rejected(path: str | Path, rejected: Sequence[RejectedRow]) -> Path:
+    """Write rejected rows with their line and reason beside the input as ``NAME.rejected.csv``."""
+    path = Path(path)
+    out = path.with_name(path.stem + ".rejected.csv")
+    columns = ["line", "reason"] + sorted({k for r in rejected for k in r.row if k is not None})
+    with out.open("w", newline="", encoding="utf-8") as handle:
+        writer = csv.DictWriter(handle, fieldnames=columns, extrasaction="ignore")
+        writer.writeheader()
+        for r in rejected:
+            writer.writerow({"line": r.line, "reason": r.reason, **{k: v for k, v in r.row.items() if k}})
+    return out
+
+
+class _RowError(Exception):
+    def __init__(self, column: str, message: str) -> None:
+        self.column = column
+        self.message = message
+        super().__init__(message)
+
+
+def _float_or_nan(text: str | None) -> float:
+    try:
+        value = float(text) if text is not None else math.nan
+    except ValueError:
+        return math.nan
+    return value if math.isfinite(value) else math.nan
+
+
+@dataclass(frozen=True)
+class ConditionRow:
+    """A condition note read from CSV (RH in percent, temperature in degrees Celsius)."""
+
+    time: datetime | None
+    rh_percent: float | None
+    temperature_c: float | None
+    note: str
+
+
+def is_conditions_csv(path: str | Path) -> bool:
+    """True when a CSV's header names condition columns and no ``value`` column."""
+    if not Path(path).exists():
+        raise MapperError("file not found", where=str(path))
+    with Path(path).open(encoding="utf-8-sig") as handle:
+        header = {h.strip() for h in (next(csv.reader(handle), []) or [])}
+    return "value" not in header and bool({"rh_percent", "temperature_c"} & header)
+
+
+def parse_conditions_csv(path: str | Path, tz: tzinfo | None = None) -> list[ConditionRow]:
+    """Read condition notes: columns ``time``, ``rh_percent``, ``temperature_c``, ``note``.
+
+    All rows are checked before any is returned; the first bad one raises with file, line and
+    column.
+    """
+    path = Path(path)
+    rows = []
+    with path.open(encoding="utf-8-sig", newline="") as handle:
+        for line, row in enumerate(csv.DictReader(handle), start=2):
+            column = "time"
+            try:
+                time = parse_time(row["time"], tz) if (row.get("time") or "").strip() else None
+                column = "rh_percent"
+                rh = parse_number(row["rh_percent"]) if (row.get("rh_percent") or "").strip() else None
+                if rh is not None and not 0 <= rh <= 100:
+                    raise MapperError(f"relative humidity {rh} % is outside 0-100 %")
+                column = "temperature_c"
+                temp = parse_number(row["temperature_c"]) if (row.get("temperature_c") or "").strip() else None
+                if temp is not None and not -60 <= temp <= 80:
+                    raise MapperError(f"temperature {temp} °C is outside -60..80 °C")
+            except MapperError as exc:
+                raise MapperError(exc.message, where=f"{path}:{line}: {column}") from None
+            rows.append(ConditionRow(time, rh, temp, (row.get("note") or "").strip()))
+    if not rows:
+        raise MapperError("no data rows", where=str(path))
+    return rows

@@ -1,0 +1,321 @@
+"""Reading site descriptions: our TOML site file, or any vector file geopandas reads.
+
+The TOML format is documented in ``docs/site-file.md``.
+"""
+
+from __future__ import annotations
+
+import re
+import tomllib
+from collections.abc import Mapping
+from pathlib import Path
+
+import numpy as np
+import shapely
+from shapely import affinity
+from shapely.geometry import MultiPolygon, Polygon
+from shapely.geometry.base import BaseGeometry
+from shapely.validation import explain_validity
+
+from mapper.errors import MapperError
+from mapper.site.georef import RMS_WARN_M, Georef, fit_similarity, utm_crs_for
+from mapper.site.model import BLOCKING_KINDS, SENSITIVE_KINDS, Asset, ControlPoint, Site, Zone
+from mapper.units import LENGTH_UNITS, parse_threshold
+
+VECTOR_SUFFIXES = (".gpkg", ".geojson", ".json", ".shp", ".dxf", ".fgb", ".kml", ".gml")
+#: Roles a vector layer or feature can take besides an asset kind.
+SPECIAL_ROLES = ("outline", "zone", "ignore")
+
+
+def load_site(path: str | Path, roles: Mapping[str, str] | None = None) -> Site:
+    """Load a site from a TOML site file or a vector file.
+
+    Parameters
+    ----------
+    path : str or Path
+        ``.toml`` site file, or a vector file (GeoPackage, GeoJSON, Shapefile, DXF ...).
+    roles : mapping, optional
+        For vector files: layer name (or DXF layer) -> role, where a role is ``outline``,
+        ``zone``, ``ignore`` or an asset kind. Features may carry a ``kind`` attribute instead.
+    """
+    path = Path(path)
+    if not path.exists():
+        raise MapperError("site file not found", where=str(path))
+    if path.suffix.lower() == ".toml":
+        return site_from_toml_text(path.read_text(encoding="utf-8"), source=str(path))
+    if path.suffix.lower() in VECTOR_SUFFIXES:
+        return site_from_vector_file(path, roles or {})
+    raise MapperError(
+        f"unknown site file type {path.suffix!r}; use a .toml site file or one of {', '.join(VECTOR_SUFFIXES)}",
+        where=str(path),
+    )
+
+
+def _header_line(text: str, table: str, index: int) -> int | None:
+    """Line number (1-based) of the ``index``-th ``[table]``/``[[table]]`` header in TOML text."""
+    pattern = re.compile(rf"^\s*\[\[?\s*{re.escape(table)}\s*\]\]?\s*(#.*)?$")
+    count = 0
+    for number, line in enumerate(text.splitlines(), start=1):
+        if pattern.match(line):
+            if count == index:
+                return number
+            count += 1
+    return None
+
+
+def _where(source: str, text: str, table: str, index: int, key: str) -> str:
+    """``file:line: [table] 'key'`` pointing at the key's own line when it is there."""
+    line = _header_line(text, table, index)
+    if line is not None:
+        lines = text.splitlines()
+        key_pattern = re.compile(rf"^\s*{re.escape(key)}\s*=")
+        for number in range(line + 1, len(lines) + 1):
+            current = lines[number - 1]
+            if current.lstrip().startswith("["):
+                break
+            if key_pattern.match(current):
+                line = number
+                break
+    label = f"[[{table}]] #{index + 1}" if table not in ("site", "outline") else f"[{table}]"
+    return f"{source}:{line}: {label} '{key}'" if line else f"{source}: {label} '{key}'"
+
+
+def parse_outline(wkt: str, where: str) -> Polygon:
+    """Parse and validate a site outline.
+
+    Refuses empty, unclosed, non-polygon and invalid (e.g. self-intersecting) outlines with
+    shapely's explanation of where it is invalid.
+    """
+    geom = parse_wkt(wkt, where)
+    if geom.is_empty:
+        raise MapperError("outline is empty; expected a POLYGON", where=where)
+    if not isinstance(geom, Polygon | MultiPolygon):
+        raise MapperError(f"outline is a {geom.geom_type}, not a POLYGON", where=where)
+    if not geom.is_valid:
+        raise MapperError(f"outline is invalid: {explain_validity(geom)}", where=where)
+    if geom.area <= 0:
+        raise MapperError("outline has no area", where=where)
+    return geom
+
+
+def parse_wkt(wkt: object, where: str) -> BaseGeometry:
+    """Parse WKT text, turning GEOS errors into a one-line message."""
+    if not isinstance(wkt, str) or not wkt.strip():
+        raise MapperError("expected WKT text, e.g. 'POLYGON ((0 0, 10 0, 10 5, 0 5, 0 0))'", where=where)
+    try:
+        return shapely.from_wkt(wkt)
+    except Exception as exc:  # shapely.errors.GEOSException and friends
+        reason = str(exc).splitlines()[0]
+        if "closed" in reason.lower():
+            reason = f"ring is not closed (first and last points differ): {reason}"
+        raise MapperError(f"bad WKT: {reason}", where=where) from None
+
+
+def _scale(geom: BaseGeometry, factor: float) -> BaseGeometry:
+    return geom if factor == 1.0 else affinity.scale(geom, factor, factor, origin=(0, 0))
+
+
+def site_from_toml_text(text: str, source: str = "<site>") -> Site:
+    """Parse a TOML site description into a :class:`Site` in metres.
+
+    Parameters
+    ----------
+    text : str
+        TOML text (see ``docs/site-file.md``).
+    source : str
+        File name used in error messages.
+    """
+    try:
+        data = tomllib.loads(text)
+    except tomllib.TOMLDecodeError as exc:
+        raise MapperError(f"not valid TOML: {exc}", where=source) from None
+    head = data.get("site")
+    if not isinstance(head, dict):
+        raise MapperError("missing [site] table with 'name'", where=source)
+    name = head.get("name")
+    if not isinstance(name, str) or not name.strip():
+        raise MapperError("missing or empty 'name'", where=_where(source, text, "site", 0, "name"))
+    units = head.get("units", "m")
+    if units not in LENGTH_UNITS:
+        raise MapperError(
+            f"unknown units {units!r}; accepted: {', '.join(LENGTH_UNITS)}",
+            where=_where(source, text, "site", 0, "units"),
+        )
+    factor = LENGTH_UNITS[units]
+    crs = head.get("crs")
+    outline_table = data.get("outline")
+    if not isinstance(outline_table, dict) or "wkt" not in outline_table:
+        raise MapperError("missing [outline] table with 'wkt'", where=source)
+    outline = _scale(parse_outline(outline_table["wkt"], _where(source, text, "outline", 0, "wkt")), factor)
+
+    assets = []
+    for i, item in enumerate(data.get("asset", [])):
+        kind = str(item.get("kind", "asset"))
+        geom = _scale(parse_wkt(item.get("wkt"), _where(source, text, "asset", i, "wkt")), factor)
+        assets.append(
+            Asset(
+                name=str(item.get("name", f"{kind} {i + 1}")),
+                kind=kind,
+                geometry=geom,
+                sensitive=bool(item.get("sensitive", kind in SENSITIVE_KINDS)),
+                walkable=bool(item.get("walkable", kind not in BLOCKING_KINDS)),
+            )
+        )
+    zones = []
+    for i, item in enumerate(data.get("zone", [])):
+        where = _where(source, text, "zone", i, "wkt")
+        geom = _scale(parse_wkt(item.get("wkt"), where), factor)
+        if not isinstance(geom, Polygon | MultiPolygon) or not geom.is_valid:
+            raise MapperError("zone must be a valid POLYGON", where=where)
+        limit = item.get("limit")
+        limit_v = None
+        if limit is not None:
+            try:
+                limit_v = parse_threshold(str(limit))
+            except MapperError as exc:
+                raise MapperError(exc.message, where=_where(source, text, "zone", i, "limit")) from None
+        zones.append(Zone(str(item.get("name", f"zone {i + 1}")), geom, limit_v, str(item.get("kind", "zone"))))
+    points = []
+    for i, item in enumerate(data.get("control_point", [])):
+        try:
+            points.append(
+                ControlPoint(
+                    float(item["x"]) * factor, float(item["y"]) * factor, float(item["lon"]), float(item["lat"])
+                )
+            )
+        except (KeyError, TypeError, ValueError) as exc:
+            raise MapperError(
+                f"control point needs numeric x, y, lon, lat ({exc})",
+                where=_where(source, text, "control_point", i, "x"),
+            ) from None
+    return _finish(name, outline, assets, zones, points, crs, source)
+
+
+def _finish(name, outline, assets, zones, points, crs, source, georef: Georef | None = None) -> Site:
+    warnings = []
+    for asset in assets:
+        if not asset.geometry.intersects(outline):
+            warnings.append(f"asset {asset.name!r} lies outside the site outline")
+    for zone in zones:
+        if not zone.geometry.intersects(outline):
+            warnings.append(f"zone {zone.name!r} lies outside the site outline")
+    if georef is None and len(points) >= 2:
+        georef = fit_similarity([(p.x, p.y) for p in points], [(p.lon, p.lat) for p in points], crs)
+        if georef.rms_m > RMS_WARN_M:
+            worst = max(range(len(points)), key=lambda k: georef.residuals_m[k])
+            warnings.append(
+                f"georeference RMS {georef.rms_m:.2f} m exceeds {RMS_WARN_M} m "
+                f"(largest residual {georef.residuals_m[worst]:.2f} m at control point {worst + 1})"
+            )
+    elif len(points) == 1:
+        warnings.append("one control point is not enough to georeference; the site stays local")
+    return Site(
+        name=name,
+        outline=outline,
+        assets=tuple(assets),
+        zones=tuple(zones),
+        control_points=tuple(points),
+        crs=georef.crs if georef else crs,
+        georef=georef,
+        warnings=tuple(warnings),
+        source=source,
+    )
+
+
+def site_from_vector_file(path: Path, roles: Mapping[str, str]) -> Site:
+    """Build a site from a vector file (outdoor sites, CAD floor plans).
+
+    Geographic data (lon/lat) is projected to its UTM zone; projected data keeps its CRS. Site
+    coordinates are the projected ones less a round origin, and the georeference is that
+    translation. Data without a CRS (typical of DXF) is taken as site metres.
+    """
+    import geopandas as gpd
+    import pyogrio
+
+    try:
+        layers = [str(row[0]) for row in pyogrio.list_layers(path)]
+    except Exception as exc:
+        raise MapperError(f"cannot read vector file: {str(exc).splitlines()[0]}", where=str(path)) from None
+    frames = []
+    for layer in layers:
+        frame = gpd.read_file(path, layer=layer)
+        frame["_layer"] = layer
+        frames.append(frame)
+    if not frames:
+        raise MapperError("vector file has no layers", where=str(path))
+    crs = frames[0].crs
+    for frame in frames[1:]:
+        if frame.crs != crs:
+            frame.to_crs(crs, inplace=True)
+    outline_parts, assets, zones = [], [], []
+    for frame in frames:
+        for index, row in frame.iterrows():
+            geom = row.geometry
+            if geom is None or geom.is_empty:
+                continue
+            role = _role_of(row, roles)
+            where = f"{path}: layer {row['_layer']!r} feature {index}"
+            if role is None:
+                raise MapperError(
+                    "feature has no role; give it a 'kind' attribute or map its layer with --role LAYER=ROLE",
+                    where=where,
+                )
+            if role == "ignore":
+                continue
+            name = str(row.get("name") or f"{role} {len(assets) + len(zones) + 1}")
+            if role == "outline":
+                if geom.geom_type in ("LineString", "LinearRing") and geom.is_closed:
+                    geom = Polygon(geom.coords)
+                outline_parts.append((geom, where))
+            elif role == "zone":
+                limit = row.get("limit")
+                limit_v = parse_threshold(str(limit)) if isinstance(limit, str) and limit else None
+                zones.append(Zone(name, geom, limit_v, str(row.get("zone_kind") or "zone")))
+            else:
+                assets.append(
+                    Asset(name, role, geom, role in SENSITIVE_KINDS, role not in BLOCKING_KINDS)
+                )
+    if not outline_parts:
+        raise MapperError("no outline: mark one polygon with kind=outline or --role LAYER=outline", where=str(path))
+    if len(outline_parts) > 1:
+        raise MapperError(f"{len(outline_parts)} outline features; expected exactly one", where=outline_parts[1][1])
+    outline_geom, outline_where = outline_parts[0]
+    outline = parse_outline(outline_geom.wkt, outline_where)
+    georef = None
+    if crs is not None:
+        if crs.is_geographic:
+            c = outline.centroid
+            target = utm_crs_for(c.x, c.y)
+            frames_crs = target
+            outline = _project(outline, crs, target)
+            assets = [Asset(a.name, a.kind, _project(a.geometry, crs, target), a.sensitive, a.walkable) for a in assets]
+            zones = [Zone(z.name, _project(z.geometry, crs, target), z.limit_v_per_m, z.kind) for z in zones]
+        else:
+            frames_crs = crs.to_string()
+        minx, miny = outline.bounds[:2]
+        ox, oy = float(int(minx // 100) * 100), float(int(miny // 100) * 100)
+        outline = affinity.translate(outline, -ox, -oy)
+        assets = [Asset(a.name, a.kind, affinity.translate(a.geometry, -ox, -oy), a.sensitive, a.walkable) for a in assets]
+        zones = [Zone(z.name, affinity.translate(z.geometry, -ox, -oy), z.limit_v_per_m, z.kind) for z in zones]
+        georef = Georef(crs=frames_crs, a=1.0, b=0.0, tx=ox, ty=oy, residuals_m=())
+    name = path.stem.replace("_", " ")
+    return _finish(name, outline, assets, zones, [], georef.crs if georef else None, str(path), georef)
+
+
+def _role_of(row, roles: Mapping[str, str]) -> str | None:
+    layer = row["_layer"]
+    cad_layer = row.get("Layer") if hasattr(row, "get") else None
+    for key in (cad_layer, layer):
+        if key is not None and key in roles:
+            return roles[key]
+    kind = row.get("kind") if hasattr(row, "get") else None
+    if isinstance(kind, str) and kind.strip():
+        return kind.strip()
+    return None
+
+
+def _project(geom: BaseGeometry, source_crs, target: str) -> BaseGeometry:
+    from pyproj import Transformer
+
+    transformer = Transformer.from_crs(source_crs, target, always_xy=True)
+    return shapely.transform(geom, lambda xy: np.column_stack(transformer.transform(xy[:, 0], xy[:, 1])))

@@ -1,0 +1,69 @@
+"""Making a new survey: load the site, plan the grid, create the file."""
+
+from __future__ import annotations
+
+from collections.abc import Mapping
+from pathlib import Path
+
+from mapper.errors import MapperError
+from mapper.plan.grid import DEFAULT_SPACING_M, plan_grid
+from mapper.site.site_file import load_site
+from mapper.survey.store import Survey
+from mapper.units import SIGN_CONVENTIONS, canonical_unit, to_si
+
+#: Default action level: 125 V/in (ANSI/ESD S20.20-2014 cl. 8.3.1 value), in V/m.
+DEFAULT_THRESHOLD_V_PER_M = to_si(125.0, "V/in")
+
+
+def create_survey(
+    survey_path: str | Path,
+    site_path: str | Path,
+    *,
+    spacing_m: float = DEFAULT_SPACING_M,
+    layout: str = "square",
+    display_unit: str = "V/m",
+    sign_convention: str = "physics",
+    threshold_v_per_m: float = DEFAULT_THRESHOLD_V_PER_M,
+    roles: Mapping[str, str] | None = None,
+    operator: str = "",
+) -> Survey:
+    """Create a survey file from a site file and open it for writing.
+
+    Parameters
+    ----------
+    survey_path : str or Path
+        New survey file.
+    site_path : str or Path
+        TOML site file or vector file.
+    spacing_m : float
+        Grid spacing, metres.
+    layout : str
+        ``square`` or ``staggered``.
+    display_unit : str
+        Field unit for entry and output.
+    sign_convention : str
+        ``physics`` (field positive upward) or ``atmospheric`` (fair weather positive).
+    threshold_v_per_m : float
+        Action level, V/m.
+    roles : mapping, optional
+        Vector-file layer roles.
+    operator : str
+        Who surveys.
+    """
+
+    if sign_convention not in SIGN_CONVENTIONS:
+        raise MapperError(f"unknown sign convention {sign_convention!r}; accepted: {', '.join(SIGN_CONVENTIONS)}")
+    site = load_site(site_path, roles)
+    plan = plan_grid(site, spacing_m, layout)
+    site_path = Path(site_path)
+    text = site_path.read_text(encoding="utf-8") if site_path.suffix.lower() == ".toml" else None
+    return Survey.create(
+        survey_path,
+        site,
+        plan,
+        display_unit=canonical_unit(display_unit),
+        sign_convention=sign_convention,
+        threshold_v_per_m=threshold_v_per_m,
+        site_text=text,
+        operator=operator,
+    )
