@@ -31,6 +31,10 @@ def register(sub) -> None:
         "--role", type=role_arg, action="append", default=[], metavar="LAYER=ROLE",
         help="for vector site files: role of a layer (outline, zone, ignore or an asset kind)",
     )
+    p.add_argument(
+        "--site-units", default="m", choices=["m", "cm", "mm", "ft", "in"],
+        help="length unit of a CAD drawing without a CRS (default m)",
+    )
     p.set_defaults(func=run)
 
 
@@ -45,6 +49,7 @@ def run(args) -> int:
         threshold_v_per_m=args.threshold,
         roles=dict(args.role),
         operator=args.operator,
+        site_units=args.site_units,
     ) as survey:
         site, plan = survey.site, survey.plan
         for message in site.warnings:

@@ -27,7 +27,7 @@ VECTOR_SUFFIXES = (".gpkg", ".geojson", ".json", ".shp", ".dxf", ".fgb", ".kml",
 SPECIAL_ROLES = ("outline", "zone", "ignore")
 
 
-def load_site(path: str | Path, roles: Mapping[str, str] | None = None) -> Site:
+def load_site(path: str | Path, roles: Mapping[str, str] | None = None, units: str = "m") -> Site:
     """Load a site from a TOML site file or a vector file.
 
     Parameters
@@ -37,6 +37,9 @@ def load_site(path: str | Path, roles: Mapping[str, str] | None = None) -> Site:
     roles : mapping, optional
         For vector files: layer name (or DXF layer) -> role, where a role is ``outline``,
         ``zone``, ``ignore`` or an asset kind. Features may carry a ``kind`` attribute instead.
+    units : str
+        For vector files without a CRS (CAD drawings): length unit of the coordinates
+        (``m``, ``cm``, ``mm``, ``ft``, ``in``).
     """
     path = Path(path)
     if not path.exists():
@@ -44,7 +47,9 @@ def load_site(path: str | Path, roles: Mapping[str, str] | None = None) -> Site:
     if path.suffix.lower() == ".toml":
         return site_from_toml_text(path.read_text(encoding="utf-8"), source=str(path))
     if path.suffix.lower() in VECTOR_SUFFIXES:
-        return site_from_vector_file(path, roles or {})
+        if units not in LENGTH_UNITS:
+            raise MapperError(f"unknown units {units!r}; accepted: {', '.join(LENGTH_UNITS)}")
+        return site_from_vector_file(path, roles or {}, LENGTH_UNITS[units])
     raise MapperError(
         f"unknown site file type {path.suffix!r}; use a .toml site file or one of {', '.join(VECTOR_SUFFIXES)}",
         where=str(path),
@@ -222,12 +227,13 @@ def _finish(name, outline, assets, zones, points, crs, source, georef: Georef | 
     )
 
 
-def site_from_vector_file(path: Path, roles: Mapping[str, str]) -> Site:
+def site_from_vector_file(path: Path, roles: Mapping[str, str], factor: float = 1.0) -> Site:
     """Build a site from a vector file (outdoor sites, CAD floor plans).
 
     Geographic data (lon/lat) is projected to its UTM zone; projected data keeps its CRS. Site
     coordinates are the projected ones less a round origin, and the georeference is that
-    translation. Data without a CRS (typical of DXF) is taken as site metres.
+    translation. Data without a CRS (typical of DXF) is taken as site coordinates, multiplied by
+    ``factor`` (metres per drawing unit).
     """
     import geopandas as gpd
     import pyogrio
@@ -298,6 +304,10 @@ def site_from_vector_file(path: Path, roles: Mapping[str, str]) -> Site:
         assets = [Asset(a.name, a.kind, affinity.translate(a.geometry, -ox, -oy), a.sensitive, a.walkable) for a in assets]
         zones = [Zone(z.name, affinity.translate(z.geometry, -ox, -oy), z.limit_v_per_m, z.kind) for z in zones]
         georef = Georef(crs=frames_crs, a=1.0, b=0.0, tx=ox, ty=oy, residuals_m=())
+    elif factor != 1.0:
+        outline = _scale(outline, factor)
+        assets = [Asset(a.name, a.kind, _scale(a.geometry, factor), a.sensitive, a.walkable) for a in assets]
+        zones = [Zone(z.name, _scale(z.geometry, factor), z.limit_v_per_m, z.kind) for z in zones]
     name = path.stem.replace("_", " ")
     return _finish(name, outline, assets, zones, [], georef.crs if georef else None, str(path), georef)
 

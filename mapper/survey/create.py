@@ -26,6 +26,7 @@ def create_survey(
     threshold_v_per_m: float = DEFAULT_THRESHOLD_V_PER_M,
     roles: Mapping[str, str] | None = None,
     operator: str = "",
+    site_units: str = "m",
 ) -> Survey:
     """Create a survey file from a site file and open it for writing.
 
@@ -49,11 +50,13 @@ def create_survey(
         Vector-file layer roles.
     operator : str
         Who surveys.
+    site_units : str
+        Length unit of a vector site file without a CRS (CAD drawings).
     """
 
     if sign_convention not in SIGN_CONVENTIONS:
         raise MapperError(f"unknown sign convention {sign_convention!r}; accepted: {', '.join(SIGN_CONVENTIONS)}")
-    site = load_site(site_path, roles)
+    site = load_site(site_path, roles, site_units)
     plan = plan_grid(site, spacing_m, layout)
     site_path = Path(site_path)
     text = site_path.read_text(encoding="utf-8") if site_path.suffix.lower() == ".toml" else None

@@ -145,6 +145,21 @@ def test_vector_layer_roles_from_command_line(tmp_path):
     assert site.assets[0].kind == "conveyor"
 
 
+def test_dxf_floor_plan_in_millimetres(tmp_path):
+    import geopandas as gpd
+    from shapely.geometry import LineString, Polygon
+
+    path = tmp_path / "plan.dxf"
+    walls = Polygon([(0, 0), (30000, 0), (30000, 20000), (0, 20000)]).exterior  # a closed polyline
+    frame = gpd.GeoDataFrame({"Layer": ["WALLS", "BELTS"]}, geometry=[walls, LineString([(2000, 2000), (20000, 2000)])])
+    with pytest.warns(UserWarning):  # GDAL notes the drawing has no CRS
+        frame.to_file(path, driver="DXF")
+    site = load_site(path, {"WALLS": "outline", "BELTS": "conveyor"}, units="mm")
+    assert site.area_m2 == pytest.approx(600.0)
+    assert site.assets[0].geometry.length == pytest.approx(18.0)
+    assert site.georef is None
+
+
 def test_sample_sites_load():
     from tests.conftest import SAMPLES
 
