@@ -7,7 +7,7 @@ import sys
 import time
 from zoneinfo import ZoneInfo, ZoneInfoNotFoundError
 
-from mapper.cli.common import say, unit_arg, warn
+from mapper.cli.common import positive_float, say, unit_arg, warn
 from mapper.errors import MapperError
 from mapper.readings.importing import (
     is_conditions_csv,
@@ -25,6 +25,16 @@ def register(sub) -> None:
     p.add_argument("--unit", type=unit_arg, help="unit of values without a unit column")
     p.add_argument("--skip-bad", action="store_true", help="import good rows; write bad ones beside the input")
     p.add_argument("--tz", default=None, help="time zone of times written without an offset (default UTC)")
+    p.add_argument("--log", action="store_true", help="FILE is a timed meter log time,value[,unit]; needs --track")
+    p.add_argument(
+        "--track", metavar="TRACK",
+        help="with --log: walked track (CSV time,x,y or time,lon,lat; GPX; NMEA) or CSV time,point",
+    )
+    p.add_argument(
+        "--tolerance", type=positive_float, default=10.0, metavar="SECONDS",
+        help="with --log: largest time gap to a track position (default 10 s)",
+    )
+    p.add_argument("--meter", default=None, help="with --log: meter id of the log (default the survey's meter)")
     p.set_defaults(func=run)
 
 
@@ -35,6 +45,12 @@ def run(args) -> int:
             tz = ZoneInfo(args.tz)
         except (ZoneInfoNotFoundError, ValueError):
             raise MapperError(f"unknown time zone {args.tz!r}; use a name like Europe/Berlin") from None
+    if args.track and not args.log:
+        raise MapperError("--track goes with --log (a timed meter log)")
+    if args.log:
+        if not args.track:
+            raise MapperError("--log needs --track TRACK: positions to place the log's readings by time")
+        return _import_log(args, tz)
     with Survey.open(args.survey, write=True) as survey:
         if is_conditions_csv(args.file):
             notes = parse_conditions_csv(args.file, tz)
@@ -66,4 +82,32 @@ def _slow_down(survey: Survey, delay: float) -> int:
     if survey.conn.in_transaction:
         print("mapper: import transaction open", file=sys.stderr, flush=True)
         time.sleep(delay)
+    return 0
+
+
+def _import_log(args, tz) -> int:
+    from datetime import UTC
+
+    from mapper.readings.log_match import import_meter_log
+
+    with Survey.open(args.survey, write=True) as survey:
+        if args.meter and args.meter not in survey.meters():
+            raise MapperError(f"unknown meter {args.meter!r}; add it with 'mapper meter add'")
+        result = import_meter_log(
+            args.file,
+            args.track,
+            survey.site,
+            {p.label: (p.x, p.y) for p in survey.plan.points},
+            unit=args.unit or None,
+            sign=survey.sign_convention,
+            tolerance_s=args.tolerance,
+            naive_tz=tz or UTC,
+            meter_id=args.meter,
+        )
+        for line in result.report():
+            warn(line)
+        if not result.readings:
+            raise MapperError("no log reading could be placed on the site; nothing imported", where=args.file)
+        stored = survey.add_readings(result.readings, source=os.path.basename(args.file))
+        say(f"imported {len(stored)} readings from the log into {survey.path}")
     return 0

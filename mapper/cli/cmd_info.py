@@ -5,6 +5,7 @@ from __future__ import annotations
 import json
 
 from mapper.cli.common import say
+from mapper.corrections.pipeline import correct_survey
 from mapper.survey.store import Survey
 from mapper.survey.summary import summarise
 from mapper.units import format_field
@@ -20,6 +21,13 @@ def register(sub) -> None:
 def run(args) -> int:
     with Survey.open(args.survey) as survey:
         info = summarise(survey)
+        result = correct_survey(survey)
+    info["corrections"] = {
+        "applied": list(result.applied),
+        "warnings": list(result.warnings),
+        "drift": [d.summary() for d in result.drift],
+        "outliers_flagged": [r.reading.point or f"#{r.reading.id}" for r in result.flagged_outliers],
+    }
     if args.json:
         say(json.dumps(info, indent=2))
         return 0
@@ -56,6 +64,13 @@ def run(args) -> int:
     else:
         say("conditions none recorded")
     say(f"meters    {', '.join(info['meters'])}")
-    for message in site["warnings"]:
+    corr = info["corrections"]
+    say(f"corrected {', '.join(corr['applied']) or 'none applied (raw values used)'}")
+    for line in corr["drift"]:
+        say(f"drift     {line}")
+    if corr["outliers_flagged"]:
+        say(f"review    {len(corr['outliers_flagged'])} readings flagged as possible outliers: "
+            f"{', '.join(corr['outliers_flagged'][:12])}")
+    for message in site["warnings"] + corr["warnings"]:
         say(f"warning   {message}")
     return 0

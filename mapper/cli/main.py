@@ -16,6 +16,7 @@ COMMANDS = (
     "cmd_new",
     "cmd_import",
     "cmd_info",
+    "cmd_meter",
     "cmd_demo",
 )
 

@@ -49,7 +49,8 @@ def test_default_unit_used_without_suffix():
 
 @pytest.mark.parametrize(
     "text",
-    ["", "  ", "abc", "nan", "inf", "-inf", "12 V/furlong", "1,5 kV/m", "3.1 MV/m", "4000 kV/m"],
+    ["", "  ", "abc", "nan", "inf", "-inf", "12 V/furlong", "1,5 kV/m", "3.1 MV/m", "4000 kV/m",
+     "1.2 mV/m", "1.2 mv/m"],
 )
 def test_bad_values_refused(text):
     with pytest.raises(MapperError):
