@@ -29,12 +29,13 @@ SEED = 20261202
 HALL_ORIGIN_E, HALL_ORIGIN_N, HALL_ROTATION_DEG = 411_250.0, 5_656_480.0, 23.0
 HALL_METER_HEIGHT_M = 1.0
 HALL_SOURCES = [
-    # belt 1: return run of a rubber belt charged by friction, 0.8 m above the floor
-    LineCharge(7.0, 9.0, 33.0, 9.0, h=0.8, density_c_per_m=+2.5e-7),
-    # stretch-wrap station: freshly wrapped pallet leaving the station, film charged negative
-    PointCharge(42.8, 11.2, h=0.5, q=-8.0e-7),
-    # stack of plastic totes by the wall
-    AreaCharge(18.0, 21.0, 21.0, 23.0, h=0.9, density_c_per_m2=+4.0e-7),
+    # belt 1: overhead conveyor, its rubber belt charged negative by friction, 2.4 m up
+    # (the field below points up toward it: positive in the physics convention)
+    LineCharge(7.0, 9.0, 33.0, 9.0, h=2.4, density_c_per_m=-1.0e-6),
+    # stretch-wrap station: film carriage at the top of its mast, film charged positive
+    PointCharge(42.8, 11.2, h=2.6, q=+6.0e-6),
+    # stack of plastic totes by the wall, top layer charged negative
+    AreaCharge(17.0, 21.0, 21.0, 23.0, h=2.0, density_c_per_m2=-6.0e-7),
 ]
 
 HALL_TOML = """# North Hall: an invented packaging hall with two conveyor lines, a stretch-wrap station,
@@ -50,6 +51,7 @@ wkt = "POLYGON ((0 0, 48 0, 48 30, 12 30, 12 25, 0 25, 0 0))"
 [[asset]]
 name = "belt 1"
 kind = "conveyor"
+# overhead, 2.4 m up
 wkt = "LINESTRING (7 9, 33 9)"
 
 [[asset]]

@@ -17,7 +17,12 @@ COMMANDS = (
     "cmd_import",
     "cmd_info",
     "cmd_meter",
+    "cmd_hotspots",
+    "cmd_compare",
+    "cmd_export",
+    "cmd_report",
     "cmd_demo",
+    "cmd_walk",
 )
 
 

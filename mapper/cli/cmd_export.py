@@ -1,0 +1,58 @@
+"""``mapper export``: GeoPackage with styled layers, GeoTIFF of the field and, on request, CSV."""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+from mapper.cli.common import positive_float, say, threshold_arg, warn
+from mapper.errors import MapperError
+from mapper.export.bundle import export_products
+from mapper.export.pipeline import survey_products
+from mapper.field.build import METHODS
+from mapper.survey.store import Survey
+
+
+def register(sub) -> None:
+    p = sub.add_parser(
+        "export",
+        help="write a GeoPackage (readings, site, zones, assets, contours, bands, hotspots, advice) "
+        "and a GeoTIFF of the field beside it",
+    )
+    p.add_argument("survey", help="survey file")
+    p.add_argument("out", help="GeoPackage to write (OUT.gpkg; the GeoTIFF goes to OUT.tif)")
+    p.add_argument("--threshold", type=threshold_arg, default=None,
+                   help="action level with unit, e.g. 1kV/m (default: the survey's own)")
+    p.add_argument("--method", choices=METHODS, default=None,
+                   help="interpolation method; given, the field model is rebuilt (default: the stored "
+                   "model, or auto)")
+    p.add_argument("--cell", type=positive_float, default=None, metavar="METRES",
+                   help="grid cell in metres; given, the field model is rebuilt")
+    p.add_argument("--csv", default=None, metavar="FILE", help="also write the corrected readings as CSV")
+    p.set_defaults(func=run)
+
+
+def check_output(path: str, suffix: str) -> Path:
+    """Refuse an output name or folder before any work is done."""
+    out = Path(path)
+    if out.suffix.lower() != suffix:
+        raise MapperError(f"output {out.name!r} should end in {suffix}", where=str(out))
+    if not out.parent.exists():
+        raise MapperError("folder does not exist", where=str(out.parent))
+    return out
+
+
+def run(args) -> int:
+    check_output(args.out, ".gpkg")
+    if args.csv is not None:
+        check_output(args.csv, ".csv")
+    with Survey.open(args.survey) as survey:
+        products = survey_products(survey, args.threshold, args.method, args.cell)
+    for note in products.notes:
+        if note.startswith("field model:"):
+            say(note)
+        elif note != products.no_field_reason:
+            warn(note)
+    result = export_products(products, args.out, csv_path=args.csv)
+    for line in result.lines(products):
+        say(line)
+    return 0

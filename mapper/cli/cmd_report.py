@@ -1,0 +1,48 @@
+"""``mapper report``: the printable PDF report (map, findings, cautions); ``--png`` for the map alone."""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+from mapper.cli.cmd_export import check_output
+from mapper.cli.common import positive_float, say, threshold_arg, warn
+from mapper.export.pipeline import survey_products
+from mapper.export.report import write_report
+from mapper.field.build import METHODS
+from mapper.survey.store import Survey
+
+
+def register(sub) -> None:
+    p = sub.add_parser("report", help="write a PDF report: the field map, the findings and the cautions")
+    p.add_argument("survey", help="survey file")
+    p.add_argument("out", help="PDF to write")
+    p.add_argument("--threshold", type=threshold_arg, default=None,
+                   help="action level with unit, e.g. 1kV/m (default: the survey's own)")
+    p.add_argument("--method", choices=METHODS, default=None,
+                   help="interpolation method; given, the field model is rebuilt")
+    p.add_argument("--cell", type=positive_float, default=None, metavar="METRES",
+                   help="grid cell in metres; given, the field model is rebuilt")
+    p.add_argument("--png", nargs="?", const="", default=None, metavar="FILE",
+                   help="also write the map alone as PNG (default: OUT with .png)")
+    p.set_defaults(func=run)
+
+
+def run(args) -> int:
+    check_output(args.out, ".pdf")
+    if args.png:
+        check_output(args.png, ".png")
+    with Survey.open(args.survey) as survey:
+        products = survey_products(survey, args.threshold, args.method, args.cell)
+    for note in products.notes:
+        if note.startswith("field model:"):
+            say(note)
+        elif note != products.no_field_reason:
+            warn(note)
+    png = None if args.png is None else (Path(args.png) if args.png else Path(args.out).with_suffix(".png"))
+    result = write_report(products, args.out, png_path=png)
+    say(f"wrote {result.pdf} ({result.pages} pages)")
+    if result.png is not None:
+        say(f"wrote {result.png} (the map alone)")
+    if products.grid is None:
+        say(f"no field map: {products.no_field_reason}")
+    return 0

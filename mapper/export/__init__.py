@@ -1,0 +1,33 @@
+"""Hand-over: the shared survey pipeline, GeoPackage with styles, GeoTIFF, CSV and the PDF report.
+
+:func:`survey_products` runs survey -> corrected readings -> field grid -> findings once; the
+export, the report and the terminal app all read its :class:`Products`.
+"""
+
+from mapper.export.bundle import ExportResult, export_products
+from mapper.export.crs import ExportCRS, export_crs
+from mapper.export.csv_out import write_readings_csv
+from mapper.export.gpkg import GpkgResult, write_geopackage
+from mapper.export.metadata import MetaRow, metadata_rows
+from mapper.export.pipeline import MIN_FIELD_POSITIONS, Products, survey_products
+from mapper.export.raster import grid_transform, write_geotiff
+from mapper.export.report import ReportResult, write_report
+
+__all__ = [
+    "MIN_FIELD_POSITIONS",
+    "ExportCRS",
+    "ExportResult",
+    "GpkgResult",
+    "MetaRow",
+    "Products",
+    "ReportResult",
+    "export_crs",
+    "export_products",
+    "grid_transform",
+    "metadata_rows",
+    "survey_products",
+    "write_geopackage",
+    "write_geotiff",
+    "write_readings_csv",
+    "write_report",
+]

@@ -1,0 +1,96 @@
+"""The hand-over in one call: GeoPackage, GeoTIFF beside it and, on request, CSV."""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from pathlib import Path
+
+from mapper.export.csv_out import write_readings_csv
+from mapper.export.gpkg import GpkgResult, write_geopackage
+from mapper.export.pipeline import Products
+from mapper.export.raster import write_geotiff
+from mapper.units import format_field
+
+
+@dataclass(frozen=True)
+class ExportResult:
+    """What an export wrote.
+
+    Attributes
+    ----------
+    gpkg : GpkgResult
+        The GeoPackage and its layer counts.
+    tif : Path or None
+        The GeoTIFF (``None`` without a field model).
+    csv : Path or None
+        The CSV, when asked for.
+    removed_stale_tif : bool
+        A GeoTIFF from an earlier export stood beside the GeoPackage and was removed, because this
+        export has no field model to replace it with.
+    """
+
+    gpkg: GpkgResult
+    tif: Path | None
+    csv: Path | None
+    removed_stale_tif: bool = False
+
+    def lines(self, products: Products) -> list[str]:
+        """What was written, one line per file, for the command line."""
+        counts = ", ".join(f"{name} {n}" for name, n in self.gpkg.layers.items())
+        out = [f"wrote {self.gpkg.path} (CRS {self.gpkg.crs}): {counts}"]
+        if self.tif is not None:
+            g = products.grid
+            out.append(
+                f"wrote {self.tif}: {len(g.x)} x {len(g.y)} cells of {g.cell_m:g} m, bands estimate and "
+                f"standard deviation in V/m, nodata outside the site"
+            )
+        else:
+            out.append(f"no field layers and no GeoTIFF: {products.no_field_reason}")
+            if self.removed_stale_tif:
+                out.append(f"removed {Path(self.gpkg.path).with_suffix('.tif')} left by an earlier export")
+        if self.csv is not None:
+            out.append(f"wrote {self.csv}: {len(products.readings)} corrected readings")
+        if products.findings is not None:
+            f = products.findings
+            out.append(
+                f"at {format_field(products.threshold_v_per_m, products.display_unit)}: {len(f.hotspots)} hotspots, "
+                f"{len(f.violations)} keep-away violations, {len(f.advice)} suggested readings"
+            )
+        return out
+
+
+def export_products(products: Products, gpkg_path: str | Path, *, csv_path: str | Path | None = None) -> ExportResult:
+    """Write the GeoPackage, the GeoTIFF beside it (``OUT.tif``) and optionally the CSV.
+
+    Parameters
+    ----------
+    products : Products
+        Output of :func:`~mapper.export.pipeline.survey_products`.
+    gpkg_path : str or Path
+        Target ``.gpkg``.
+    csv_path : str or Path, optional
+        Also write the corrected readings here as CSV.
+
+    Returns
+    -------
+    ExportResult
+    """
+    gpkg_path = Path(gpkg_path)
+    gpkg = write_geopackage(products, gpkg_path)
+    tif_path = gpkg_path.with_suffix(".tif")
+    tif = None
+    removed = False
+    if products.grid is not None:
+        tif = write_geotiff(
+            products.grid, products.crs, tif_path,
+            tags={"threshold_v_per_m": f"{products.threshold_v_per_m:.10g}", "site": products.name,
+                  "sign_convention": "physics (positive: field pointing up)"},
+        )
+    elif tif_path.exists():
+        tif_path.unlink()
+        removed = True
+    csv = write_readings_csv(products, csv_path) if csv_path is not None else None
+    return ExportResult(gpkg, tif, csv, removed)
+
+
+__all__ = ["ExportResult", "export_products"]

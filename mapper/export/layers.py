@@ -1,0 +1,260 @@
+"""The exported layers as GeoDataFrames in the export CRS, one builder per layer.
+
+Attribute values are SI (``*_v_per_m``, metres, square metres) with display-unit copies where a
+person reads them; areas and distances are ground metres measured in the site frame.
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Sequence
+from dataclasses import dataclass
+
+import geopandas as gpd
+import pandas as pd
+from shapely.geometry import Point
+
+from mapper.export.crs import transform_all
+from mapper.export.pipeline import Products, is_excluded
+from mapper.export.styles import band_colors
+from mapper.units import from_si
+
+
+@dataclass(frozen=True)
+class Layer:
+    """One layer to write.
+
+    Attributes
+    ----------
+    name : str
+        Table name in the GeoPackage.
+    frame : geopandas.GeoDataFrame
+        Features in the export CRS.
+    geometry_type : str
+        OGR geometry type name written to the GeoPackage (``Point``, ``MultiPolygon``, ``Unknown``...).
+    description : str
+        What the layer holds (stored in ``gpkg_contents``).
+    """
+
+    name: str
+    frame: gpd.GeoDataFrame
+    geometry_type: str
+    description: str
+
+
+def _frame(records: Sequence[dict], geoms: Sequence, products: Products, columns: Sequence[str]) -> gpd.GeoDataFrame:
+    data = pd.DataFrame.from_records(list(records), columns=list(columns))
+    return gpd.GeoDataFrame(data, geometry=transform_all(geoms, products.crs), crs=products.crs.crs)
+
+
+def _display(value: float | None, unit: str) -> float | None:
+    return None if value is None or not math.isfinite(value) else from_si(value, unit)
+
+
+def _finite(value: float | None) -> float | None:
+    return None if value is None or not math.isfinite(value) else float(value)
+
+
+READING_COLUMNS = (
+    "reading_id", "point", "kind", "value_v_per_m", "raw_v_per_m", "value_display", "display_unit",
+    "entered_value", "entered_unit", "time_utc", "height_m", "meter_id", "note", "flags",
+    "corrections", "used_in_model", "x_site_m", "y_site_m", "source", "recorded_utc",
+    "rh_percent", "temperature_c", "conditions_utc", "conditions_note",
+)
+
+
+def reading_records(products: Products) -> list[dict]:
+    """One dict per corrected field reading with every stored attribute (see :data:`READING_COLUMNS`)."""
+    unit = products.display_unit
+    out = []
+    for c in products.readings:
+        r = c.reading
+        cond = products.nearest_conditions(r.time)
+        extra = products.reading_extra.get(r.id, {})
+        flags = list(dict.fromkeys([*r.flags, *c.flags]))
+        out.append({
+            "reading_id": r.id,
+            "point": r.point,
+            "kind": r.kind,
+            "value_v_per_m": c.value_v_per_m,
+            "raw_v_per_m": r.value_v_per_m,
+            "value_display": from_si(c.value_v_per_m, unit),
+            "display_unit": unit,
+            "entered_value": r.entered_value,
+            "entered_unit": r.entered_unit,
+            "time_utc": pd.Timestamp(r.time).tz_convert("UTC"),
+            "height_m": r.height_m,
+            "meter_id": r.meter_id,
+            "note": r.note,
+            "flags": ",".join(flags),
+            "corrections": ",".join(c.corrections),
+            "used_in_model": not is_excluded(c),
+            "x_site_m": r.x,
+            "y_site_m": r.y,
+            "source": extra.get("source"),
+            "recorded_utc": extra.get("recorded_utc"),
+            "rh_percent": cond.rh_percent if cond else None,
+            "temperature_c": cond.temperature_c if cond else None,
+            "conditions_utc": cond.time.isoformat() if cond else None,
+            "conditions_note": cond.note if cond else None,
+        })
+    return out
+
+
+def readings_layer(products: Products) -> Layer:
+    """Corrected field readings as points."""
+    records = reading_records(products)
+    geoms = [Point(c.reading.x, c.reading.y) for c in products.readings]
+    frame = _frame(records, geoms, products, READING_COLUMNS)
+    if frame.empty:
+        frame["time_utc"] = pd.Series(dtype="datetime64[ms, UTC]")
+    for col in ("height_m", "rh_percent", "temperature_c"):
+        frame[col] = pd.to_numeric(frame[col], errors="coerce").astype(float)
+    return Layer("readings", frame, "Point", "field readings: corrected value_v_per_m, raw value, entry, conditions")
+
+
+def site_layer(products: Products) -> Layer:
+    """The site outline."""
+    s = products.site
+    frame = _frame([{"name": s.name, "area_m2": s.area_m2, "crs": products.crs.name}], [s.outline],
+                   products, ("name", "area_m2", "crs"))
+    return Layer("site", frame, "MultiPolygon", "site outline")
+
+
+def zones_layer(products: Products) -> Layer:
+    """Zones with their own limits."""
+    unit = products.display_unit
+    zones = products.site.zones
+    records = [{"name": z.name, "kind": z.kind, "limit_v_per_m": z.limit_v_per_m,
+                "limit_display": _display(z.limit_v_per_m, unit), "display_unit": unit,
+                "area_m2": float(z.geometry.area)} for z in zones]
+    frame = _frame(records, [z.geometry for z in zones], products,
+                   ("name", "kind", "limit_v_per_m", "limit_display", "display_unit", "area_m2"))
+    frame["limit_v_per_m"] = frame["limit_v_per_m"].astype(float)
+    frame["limit_display"] = frame["limit_display"].astype(float)
+    return Layer("zones", frame, "MultiPolygon", "zones (e.g. ESD protected areas) with their limits")
+
+
+def assets_layer(products: Products) -> Layer:
+    """Assets (lines and polygons mixed)."""
+    assets = products.site.assets
+    records = [{"name": a.name, "kind": a.kind, "sensitive": bool(a.sensitive), "walkable": bool(a.walkable)}
+               for a in assets]
+    frame = _frame(records, [a.geometry for a in assets], products, ("name", "kind", "sensitive", "walkable"))
+    return Layer("assets", frame, "Unknown", "assets: conveyors, workstations, racks ...")
+
+
+def contours_layer(products: Products) -> Layer:
+    """Iso-lines of the estimate with their level."""
+    f = products.findings
+    lines = [i for i in f.isolines if not i.geometry.is_empty]
+    unit = products.display_unit
+    records = [{"level_v_per_m": i.level_v_per_m, "level_display": from_si(i.level_v_per_m, unit),
+                "display_unit": unit, "label": i.label, "length_m": i.length_m} for i in lines]
+    frame = _frame(records, [i.geometry for i in lines], products,
+                   ("level_v_per_m", "level_display", "display_unit", "label", "length_m"))
+    return Layer("contours", frame, "MultiLineString", "contour lines of the field estimate")
+
+
+def bands_layer(products: Products) -> Layer:
+    """Filled bands between consecutive levels (open ends stored as NULL)."""
+    f = products.findings
+    colors = band_colors(f.bands, f.levels)
+    unit = products.display_unit
+    records, geoms = [], []
+    for i, (b, color) in enumerate(zip(f.bands, colors, strict=True)):
+        if b.geometry.is_empty:
+            continue
+        records.append({
+            "band_index": i, "lower_v_per_m": _finite(b.lower_v_per_m), "upper_v_per_m": _finite(b.upper_v_per_m),
+            "lower_display": _display(b.lower_v_per_m, unit), "upper_display": _display(b.upper_v_per_m, unit),
+            "display_unit": unit, "label": b.label, "area_m2": b.area_m2, "color": color,
+        })
+        geoms.append(b.geometry)
+    frame = _frame(records, geoms, products, ("band_index", "lower_v_per_m", "upper_v_per_m", "lower_display",
+                                              "upper_display", "display_unit", "label", "area_m2", "color"))
+    for col in ("lower_v_per_m", "upper_v_per_m", "lower_display", "upper_display"):
+        frame[col] = frame[col].astype(float)
+    return Layer("bands", frame, "MultiPolygon", "field bands between contour levels (lower < E <= upper)")
+
+
+HOTSPOT_COLUMNS = (
+    "hotspot_id", "polarity", "status", "area_m2", "threshold_v_per_m", "peak_v_per_m", "peak_display",
+    "display_unit", "peak_x_site_m", "peak_y_site_m", "mean_v_per_m", "n_readings", "reading_ids",
+    "max_reading_v_per_m", "p_exceed_max", "nearest_asset", "nearest_asset_m", "zones", "zone",
+)
+
+
+def hotspots_layer(products: Products) -> Layer:
+    """Hotspots at the survey threshold, then those at zone limits (``zone`` set)."""
+    f = products.findings
+    unit = products.display_unit
+    spots = (*f.hotspots, *f.zone_hotspots)
+    records = [{
+        "hotspot_id": h.id, "polarity": h.polarity, "status": h.status, "area_m2": h.area_m2,
+        "threshold_v_per_m": h.threshold_v_per_m, "peak_v_per_m": h.peak_v_per_m,
+        "peak_display": from_si(h.peak_v_per_m, unit), "display_unit": unit,
+        "peak_x_site_m": h.peak_x, "peak_y_site_m": h.peak_y, "mean_v_per_m": h.mean_v_per_m,
+        "n_readings": len(h.reading_ids), "reading_ids": ",".join(map(str, h.reading_ids)),
+        "max_reading_v_per_m": h.max_reading_v_per_m, "p_exceed_max": h.p_exceed_max,
+        "nearest_asset": h.nearest_asset, "nearest_asset_m": h.nearest_asset_m,
+        "zones": ",".join(h.zones), "zone": h.zone,
+    } for h in spots]
+    frame = _frame(records, [h.geometry for h in spots], products, HOTSPOT_COLUMNS)
+    for col in ("max_reading_v_per_m", "p_exceed_max", "nearest_asset_m"):
+        frame[col] = frame[col].astype(float)
+    return Layer("hotspots", frame, "MultiPolygon",
+                 "regions with |E| at or above the threshold (zone = a zone's own limit)")
+
+
+def probable_layer(products: Products) -> Layer:
+    """Regions where P(|E| >= threshold) >= 0.5."""
+    f = products.findings
+    records = [{"probable_id": p.id, "area_m2": p.area_m2, "threshold_v_per_m": p.threshold_v_per_m,
+                "p_exceed_max": p.p_exceed_max, "hotspot_ids": ",".join(p.hotspot_ids)} for p in f.probable]
+    frame = _frame(records, [p.geometry for p in f.probable], products,
+                   ("probable_id", "area_m2", "threshold_v_per_m", "p_exceed_max", "hotspot_ids"))
+    return Layer("probable_exceedance", frame, "MultiPolygon",
+                 "regions where the probability of exceeding the threshold is at least 0.5")
+
+
+def violations_layer(products: Products) -> Layer:
+    """High-field regions too close to sensitive assets, one feature per violation."""
+    f = products.findings
+    records = [{"rule": v.rule.key, "standard": v.rule.standard, "asset": v.asset, "asset_kind": v.asset_kind,
+                "distance_m": v.distance_m, "min_distance_m": v.rule.min_distance_m,
+                "field_above_v_per_m": v.rule.field_above_v_per_m, "region_peak_v_per_m": v.region_peak_v_per_m,
+                "message": v.message} for v in f.violations]
+    frame = _frame(records, [v.region for v in f.violations], products,
+                   ("rule", "standard", "asset", "asset_kind", "distance_m", "min_distance_m",
+                    "field_above_v_per_m", "region_peak_v_per_m", "message"))
+    return Layer("violations", frame, "MultiPolygon", "keep-away rule violations (region above the rule's level)")
+
+
+def advice_layer(products: Products) -> Layer:
+    """Suggested places for the next readings, ranked."""
+    f = products.findings
+    records = [{"rank": s.rank, "reason": s.reason, "why": s.why, "estimate_v_per_m": s.estimate_v_per_m,
+                "std_v_per_m": s.std_v_per_m, "p_exceed": s.p_exceed, "gap_m": s.gap_m, "point": s.point,
+                "x_site_m": s.x, "y_site_m": s.y} for s in f.advice]
+    frame = _frame(records, [Point(s.x, s.y) for s in f.advice], products,
+                   ("rank", "reason", "why", "estimate_v_per_m", "std_v_per_m", "p_exceed", "gap_m", "point",
+                    "x_site_m", "y_site_m"))
+    for col in ("std_v_per_m", "p_exceed", "gap_m"):
+        frame[col] = frame[col].astype(float)
+    return Layer("advice", frame, "Point", "suggested places for the next readings, rank 1 first")
+
+
+def all_layers(products: Products) -> list[Layer]:
+    """Every layer the products allow: the base layers always, field layers with a field model."""
+    layers = [readings_layer(products), site_layer(products), zones_layer(products), assets_layer(products)]
+    if products.has_field:
+        layers += [contours_layer(products), bands_layer(products), hotspots_layer(products),
+                   probable_layer(products), violations_layer(products), advice_layer(products)]
+    return layers
+
+
+#: Layers only written with a field model.
+FIELD_LAYERS = ("contours", "bands", "hotspots", "probable_exceedance", "violations", "advice")
+
+__all__ = ["FIELD_LAYERS", "HOTSPOT_COLUMNS", "READING_COLUMNS", "Layer", "all_layers", "reading_records"]

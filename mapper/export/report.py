@@ -1,0 +1,593 @@
+"""The printable report: a multi-page PDF (matplotlib) and, on request, the map alone as PNG.
+
+Page 1 is the map: site outline, assets and zones, field bands with a labelled colour bar in the
+display unit, labelled contours, hotspots outlined with their ids, readings as dots, a scale bar
+and, for a georeferenced site, a north arrow. Page 2 holds the findings: hotspot table, limit
+violations, conditions, meter and calibration, method and cross-validation, the
+standard-deviation map, and the cautions. Text is embedded as TrueType (``pdf.fonttype`` 42), so
+it stays real, searchable text.
+"""
+
+from __future__ import annotations
+
+import math
+import textwrap
+from collections.abc import Sequence
+from dataclasses import dataclass
+from pathlib import Path
+
+import matplotlib
+import numpy as np
+from matplotlib.backends.backend_pdf import PdfPages
+from matplotlib.cm import ScalarMappable
+from matplotlib.colors import BoundaryNorm, LinearSegmentedColormap, ListedColormap, Normalize
+from matplotlib.figure import Figure
+from matplotlib.lines import Line2D
+from matplotlib.patches import FancyBboxPatch, Patch, PathPatch, Rectangle
+from matplotlib.path import Path as MplPath
+from matplotlib.ticker import FuncFormatter
+from shapely.geometry.base import BaseGeometry
+from shapely.geometry.polygon import orient
+
+from mapper import __version__
+from mapper.errors import MapperError
+from mapper.export import styles as st
+from mapper.export.pipeline import Products
+from mapper.features import CAUTIONS, LIMITS_ARE_DEFAULTS
+from mapper.features.contours import Levels, nice_levels
+from mapper.survey.store import to_utc_text, utc_now
+from mapper.units import format_field, from_si
+
+#: A4 landscape, inches.
+PAGE_SIZE_IN = (11.69, 8.27)
+#: Matplotlib settings for every page: TrueType text in the PDF, one sans-serif family.
+RC = {
+    "pdf.fonttype": 42,
+    "ps.fonttype": 42,
+    "font.family": "DejaVu Sans",
+    "font.size": 8.5,
+    "axes.titlesize": 10,
+    "axes.labelsize": 8,
+    "xtick.labelsize": 7,
+    "ytick.labelsize": 7,
+}
+#: Section headings of page 2 (tests look for them).
+SECTIONS = (
+    "Hotspots",
+    "Limit violations",
+    "Conditions",
+    "Meter and calibration",
+    "Method and cross-validation",
+    "Uncertainty",
+    "Cautions",
+)
+#: Largest number of hotspot rows printed; the rest are in the GeoPackage.
+MAX_HOTSPOT_ROWS = 9
+
+
+@dataclass(frozen=True)
+class ReportResult:
+    """What was written.
+
+    Attributes
+    ----------
+    pdf : Path
+        The report.
+    png : Path or None
+        The map alone, when asked for.
+    pages : int
+        Pages in the PDF.
+    """
+
+    pdf: Path
+    png: Path | None
+    pages: int
+
+
+# ------------------------------------------------------------------------------- drawing helpers
+def _polygon_path(geom: BaseGeometry) -> MplPath | None:
+    """A matplotlib path of a (multi)polygon, holes included (exterior CCW, holes CW)."""
+    polys = [g for g in getattr(geom, "geoms", [geom]) if g.geom_type == "Polygon" and not g.is_empty]
+    if not polys:
+        return None
+    verts, codes = [], []
+    for poly in polys:
+        poly = orient(poly, 1.0)
+        for ring in (poly.exterior, *poly.interiors):
+            xy = np.asarray(ring.coords)
+            verts.append(xy)
+            codes += [MplPath.MOVETO] + [MplPath.LINETO] * (len(xy) - 2) + [MplPath.CLOSEPOLY]
+    return MplPath(np.concatenate(verts), codes)
+
+
+def _fill(ax, geom: BaseGeometry, **kw) -> None:
+    path = _polygon_path(geom)
+    if path is not None:
+        ax.add_patch(PathPatch(path, **kw))
+
+
+def _lines(ax, geom: BaseGeometry, **kw) -> None:
+    parts = getattr(geom, "geoms", [geom])
+    for part in parts:
+        if part.is_empty:
+            continue
+        if part.geom_type in ("LineString", "LinearRing"):
+            xy = np.asarray(part.coords)
+            ax.plot(xy[:, 0], xy[:, 1], **kw)
+        elif part.geom_type == "Polygon":
+            _lines(ax, part.exterior, **kw)
+            for ring in part.interiors:
+                _lines(ax, ring, **kw)
+        elif part.geom_type.startswith("Multi") or part.geom_type == "GeometryCollection":
+            _lines(ax, part, **kw)
+        elif part.geom_type == "Point":
+            ax.plot([part.x], [part.y], marker="s", color=kw.get("color", "k"), markersize=4)
+
+
+def _label_lines(ax, geom: BaseGeometry, text: str, min_length: float, placed: list, clearance: float,
+                 *, fontsize=6.5, color="#222222") -> None:
+    """Label the longest parts of a (multi)line along the line, upright, away from earlier labels.
+
+    ``placed`` holds the positions of labels already drawn (updated here); a label is moved along
+    its line, or left out, so that no two labels are closer than ``clearance`` (metres).
+    """
+    parts = sorted((p for p in getattr(geom, "geoms", [geom]) if p.length >= min_length),
+                   key=lambda p: -p.length)[:2]
+    for part in parts:
+        mid = None
+        for frac in (0.5, 0.3, 0.7, 0.15, 0.85):
+            candidate = part.interpolate(frac, normalized=True)
+            if all(math.hypot(candidate.x - x, candidate.y - y) >= clearance for x, y in placed):
+                mid = candidate
+                break
+        if mid is None:
+            continue
+        placed.append((mid.x, mid.y))
+        a = part.interpolate(max(0.0, part.project(mid) - 0.5), normalized=False)
+        b = part.interpolate(min(part.length, part.project(mid) + 0.5), normalized=False)
+        angle = math.degrees(math.atan2(b.y - a.y, b.x - a.x))
+        if angle > 90:
+            angle -= 180
+        elif angle < -90:
+            angle += 180
+        ax.text(mid.x, mid.y, text, fontsize=fontsize, color=color, rotation=angle, rotation_mode="anchor",
+                ha="center", va="center", zorder=14,
+                bbox={"boxstyle": "round,pad=0.12", "fc": "white", "ec": "none", "alpha": 0.8})
+
+
+def _nice_length(span: float) -> float:
+    """A round scale-bar length of about a fifth of ``span``, metres."""
+    target = span / 4.0
+    p = 10 ** math.floor(math.log10(target))
+    for m in (10, 5, 2, 1):
+        if m * p <= target:
+            return m * p
+    return p
+
+
+def _scale_bar(ax, bounds, unit_scale: float = 1.0) -> None:
+    """A black-and-white scale bar in the lower-left margin of the map, in metres."""
+    minx, miny, maxx, maxy = bounds
+    length = _nice_length(maxx - minx)
+    x0 = minx
+    y0 = miny - 0.085 * (maxy - miny)
+    h = 0.018 * (maxy - miny)
+    for i in range(4):
+        ax.add_patch(Rectangle((x0 + i * length / 4, y0), length / 4, h, facecolor="black" if i % 2 == 0 else "white",
+                               edgecolor="black", linewidth=0.6, zorder=9, clip_on=False))
+    for i, frac in enumerate((0, 0.5, 1.0)):
+        ax.text(x0 + frac * length, y0 + 1.6 * h, f"{frac * length:g}" + (" m" if i == 2 else ""),
+                ha="center", va="bottom", fontsize=7, zorder=9)
+
+
+def _north_arrow(ax, direction: tuple[float, float]) -> None:
+    """An arrow pointing to true north in a small square axes."""
+    dx, dy = direction
+    ax.set_xlim(-1, 1)
+    ax.set_ylim(-1, 1)
+    ax.set_aspect("equal")
+    ax.axis("off")
+    ax.annotate("", xy=(0.62 * dx, 0.62 * dy), xytext=(-0.62 * dx, -0.62 * dy),
+                arrowprops={"arrowstyle": "-|>,head_width=0.45,head_length=0.9", "lw": 1.6, "color": "black"})
+    ax.text(0.92 * dx, 0.92 * dy, "N", ha="center", va="center", fontsize=11, fontweight="bold")
+
+
+def _band_cmap(levels: Levels, colors: Sequence[str]) -> tuple[ListedColormap, BoundaryNorm, list[float]]:
+    """Colour map and norm for the bands, with open ends shown as colour-bar extensions."""
+    bounds = list(levels.display_values)
+    if len(bounds) == 1:
+        bounds = [bounds[0] - 1e-9 * max(1.0, abs(bounds[0])), bounds[0]]
+        colors = [colors[0], colors[0], colors[-1]]
+    cmap = ListedColormap(list(colors[1:-1]) or [colors[0]]).with_extremes(under=colors[0], over=colors[-1])
+    return cmap, BoundaryNorm(bounds, cmap.N), bounds
+
+
+def _value_cmap() -> LinearSegmentedColormap:
+    return LinearSegmentedColormap.from_list("mapper_diverging", [((t + 1) / 2, c) for t, c in st.RAMP])
+
+
+def _std_cmap() -> LinearSegmentedColormap:
+    return LinearSegmentedColormap.from_list("mapper_uncertainty", ["#f7f7f7", "#d9d2e6", "#a593c6", "#6f5a9e"])
+
+
+class _Column:
+    """Writes lines of text downwards in figure coordinates."""
+
+    def __init__(self, fig: Figure, x: float, top: float, width: float) -> None:
+        self.fig, self.x, self.y, self.width = fig, x, top, width
+
+    def _dy(self, size: float) -> float:
+        return 1.38 * size / 72.0 / self.fig.get_figheight()
+
+    def chars(self, size: float) -> int:
+        return max(20, int(self.width * self.fig.get_figwidth() * 72.0 / (0.53 * size)))
+
+    def heading(self, text: str) -> None:
+        self.y -= self._dy(6)
+        self.fig.text(self.x, self.y, text, fontsize=10.5, fontweight="bold", va="top", color="#1b3a6b")
+        self.y -= self._dy(11)
+
+    def para(self, text: str, size: float = 8.0, *, color: str = "black", indent: float = 0.0) -> None:
+        for line in textwrap.wrap(text, self.chars(size) - int(indent * 200)) or [""]:
+            self.fig.text(self.x + indent, self.y, line, fontsize=size, va="top", color=color)
+            self.y -= self._dy(size)
+
+    def row(self, cells: Sequence[str], stops: Sequence[float], size: float = 7.5, bold: bool = False) -> None:
+        for cell, stop in zip(cells, stops, strict=True):
+            self.fig.text(self.x + stop, self.y, cell, fontsize=size, va="top",
+                          fontweight="bold" if bold else "normal")
+        self.y -= self._dy(size)
+
+    def gap(self, size: float = 4.0) -> None:
+        self.y -= self._dy(size)
+
+
+# ------------------------------------------------------------------------------------- pages
+def _title(fig: Figure, products: Products, heading: str) -> None:
+    p = products
+    fig.text(0.04, 0.965, f"{p.name}: {heading}", fontsize=15, fontweight="bold", va="top")
+    span = p.time_span()
+    when = f"{span[0]:%Y-%m-%d %H:%M}–{span[1]:%H:%M} UTC" if span else "no readings"
+    method = (f"{p.grid.method}, cell {p.grid.cell_m:g} m" if p.grid is not None else "no field model")
+    fig.text(0.04, 0.925, f"Survey {when}  ·  {len(p.readings)} readings  ·  action level "
+             f"{format_field(p.threshold_v_per_m, p.display_unit)}  ·  {method}"
+             + (f"  ·  operator {p.operator}" if p.operator else ""), fontsize=9, va="top", color="#333333")
+    fig.text(0.04, 0.018, f"mapper {__version__}  ·  {to_utc_text(utc_now())[:16].replace('T', ' ')} UTC  ·  "
+             f"CRS {p.crs.name}  ·  {Path(p.source).name}", fontsize=6.5, color="#555555")
+
+
+def _draw_site(ax, products: Products, *, labels: bool = True) -> None:
+    site = products.site
+    for zone in site.zones:
+        _lines(ax, zone.geometry, color=st.ZONE_COLOR, linewidth=1.2, linestyle=(0, (5, 3)), zorder=6)
+        if labels:
+            minx, miny, maxx, maxy = zone.geometry.bounds
+            ax.text(minx + 0.2, maxy - 0.2, zone.name, color=st.ZONE_COLOR, fontsize=6.5, ha="left", va="top",
+                    zorder=9, fontweight="bold", bbox={"boxstyle": "round,pad=0.1", "fc": "white", "ec": "none",
+                                                       "alpha": 0.75})
+    for asset in site.assets:
+        g = asset.geometry
+        if g.geom_type.endswith("Polygon"):
+            _fill(ax, g, facecolor="#9a9a9a", edgecolor="#4a4a4a", linewidth=0.7, alpha=0.55, zorder=5,
+                  hatch="////" if not asset.walkable else None)
+        else:
+            _lines(ax, g, color="#4a4a4a", linewidth=3.2, solid_capstyle="butt", zorder=5, alpha=0.8)
+        if labels:
+            p = g.representative_point() if g.geom_type.endswith("Polygon") else g.interpolate(0.5, normalized=True)
+            ax.text(p.x, p.y, asset.name, fontsize=5.8, ha="center", va="center", color="#1e1e1e", zorder=9,
+                    style="italic", bbox={"boxstyle": "round,pad=0.08", "fc": "white", "ec": "none", "alpha": 0.6})
+    _lines(ax, site.outline, color=st.OUTLINE_COLOR, linewidth=1.6, zorder=7)
+
+
+def _frame_axes(ax, products: Products) -> tuple[float, float, float, float]:
+    minx, miny, maxx, maxy = products.site.outline.bounds
+    w, h = maxx - minx, maxy - miny
+    ax.set_xlim(minx - 0.03 * w, maxx + 0.03 * w)
+    ax.set_ylim(miny - 0.14 * h, maxy + 0.04 * h)
+    ax.set_aspect("equal")
+    ax.set_xlabel("site x (m)")
+    ax.set_ylabel("site y (m)")
+    ax.tick_params(length=2, color="#888888")
+    for spine in ax.spines.values():
+        spine.set_color("#aaaaaa")
+    return minx, miny, maxx, maxy
+
+
+def draw_map_page(fig: Figure, products: Products) -> None:
+    """Page 1: the field map with legend, colour bar, scale bar and north arrow."""
+    p = products
+    f = p.findings
+    unit = p.display_unit
+    _title(fig, p, "electrostatic field map")
+    ax = fig.add_axes((0.055, 0.085, 0.70, 0.80))
+    bounds = _frame_axes(ax, p)
+    readings = list(p.readings)
+    if f is not None:
+        colors = st.band_colors(f.bands, f.levels)
+        for band, color in zip(f.bands, colors, strict=True):
+            _fill(ax, band.geometry, facecolor=color, edgecolor=color, linewidth=0.3, zorder=1)
+        span = bounds[2] - bounds[0]
+        placed = [(h.geometry.bounds[2], h.geometry.bounds[3]) for h in (*f.hotspots, *f.zone_hotspots)]
+        for iso in f.isolines:
+            if iso.geometry.is_empty:
+                continue
+            _lines(ax, iso.geometry, color=st.CONTOUR_COLOR, linewidth=0.6, zorder=4)
+            _label_lines(ax, iso.geometry, iso.label, 0.12 * span, placed, 0.09 * span)
+        for region in f.probable:
+            _lines(ax, region.geometry, color=st.PROBABLE_COLOR, linewidth=1.3, linestyle=(0, (2, 2)), zorder=7)
+        levels = f.levels
+    else:
+        colors = None
+        values = [r.value_v_per_m for r in readings] or [0.0, 1.0]
+        lo, hi = min(values), max(values)
+        levels = nice_levels(lo, hi if hi > lo else lo + 1.0, unit=unit, count=6)
+        _fill(ax, p.site.outline, facecolor="#f2f2f2", edgecolor="none", zorder=1)
+    _draw_site(ax, p)
+    if readings:
+        xy = np.array([(r.reading.x, r.reading.y) for r in readings])
+        if f is not None:
+            ax.scatter(xy[:, 0], xy[:, 1], s=5, c="#111111", edgecolors="white", linewidths=0.3, zorder=10,
+                       label="reading")
+        else:
+            vals = np.array([from_si(r.value_v_per_m, unit) for r in readings])
+            scale = max(abs(v) for v in levels.display_values) or 1.0
+            ax.scatter(xy[:, 0], xy[:, 1], s=22, c=vals, cmap=_value_cmap(), vmin=-scale, vmax=scale,
+                       edgecolors="#111111", linewidths=0.4, zorder=10)
+    if f is not None:
+        for h in (*f.hotspots, *f.zone_hotspots):
+            color = st.HOTSPOT_COLORS.get(h.polarity, "#000000")
+            _lines(ax, h.geometry, color="white", linewidth=3.4, zorder=11)
+            _lines(ax, h.geometry, color=color, linewidth=1.9, zorder=12)
+            bx = h.geometry.bounds
+            ax.text(bx[2], bx[3], h.id, fontsize=9, fontweight="bold", color="white", ha="left", va="bottom",
+                    zorder=13, bbox={"boxstyle": "round,pad=0.2", "fc": color, "ec": "white", "lw": 0.8})
+    else:
+        ax.text(0.5, 0.55, "No field map: " + (p.no_field_reason or "no field model"), transform=ax.transAxes,
+                ha="center", va="center", fontsize=10, wrap=True, zorder=20,
+                bbox={"boxstyle": "round,pad=0.5", "fc": "#fff6d6", "ec": "#b58900"})
+    _scale_bar(ax, bounds)
+
+    # Side panel: north arrow, colour bar, legend.
+    if p.crs.georeferenced:
+        c = p.site.outline.centroid
+        nax = fig.add_axes((0.79, 0.79, 0.07, 0.10))
+        _north_arrow(nax, p.crs.site_north(c.x, c.y))
+        fig.text(0.825, 0.785, "true north", fontsize=7, va="top", ha="center", color="#333333")
+    cax = fig.add_axes((0.80, 0.36, 0.022, 0.38))
+    if colors is not None:
+        cmap, norm, ticks = _band_cmap(levels, colors)
+        cb = fig.colorbar(ScalarMappable(norm=norm, cmap=cmap), cax=cax, extend="both",
+                          ticks=ticks, spacing="uniform")
+        title = f"field estimate ({unit})"
+    else:
+        scale = max(abs(v) for v in levels.display_values) or 1.0
+        cb = fig.colorbar(ScalarMappable(norm=Normalize(-scale, scale),
+                                                       cmap=_value_cmap()), cax=cax)
+        title = f"reading ({unit})"
+    cb.ax.tick_params(labelsize=7.5)
+    cb.ax.yaxis.set_major_formatter(FuncFormatter(lambda v, _: f"{v:g}"))
+    cb.set_label(title, fontsize=8.5)
+    t = from_si(p.threshold_v_per_m, unit)
+    lo_b, hi_b = cax.get_ylim()
+    for level in (t, -t):
+        if colors is not None:
+            pos = np.interp(level, ticks, np.linspace(0, 1, len(ticks))) if ticks[0] <= level <= ticks[-1] else None
+            if pos is not None:
+                y = lo_b + pos * (hi_b - lo_b)
+                cax.axhline(y, color="black", linewidth=1.6)
+                cax.text(-0.4, y, "action level", transform=cax.get_yaxis_transform(), fontsize=6.5,
+                         va="center", ha="right")
+    fig.text(0.80, 0.335, "red: positive, field pointing up\n(away from the floor)\n"
+             "blue: negative, pointing down", fontsize=7, va="top", color="#333333", linespacing=1.3)
+    handles = [
+        Line2D([], [], color=st.OUTLINE_COLOR, lw=1.6, label="site outline"),
+        Line2D([], [], color=st.ZONE_COLOR, lw=1.2, ls=(0, (5, 3)), label="zone (own limit)"),
+        Patch(facecolor="#9a9a9a", edgecolor="#4a4a4a", alpha=0.55, label="asset"),
+        Line2D([], [], marker="o", ls="none", markersize=3, color="#111111", label="reading"),
+    ]
+    if f is not None:
+        handles[3:3] = [
+            Line2D([], [], color=st.CONTOUR_COLOR, lw=0.6, label="contour"),
+            Line2D([], [], color=st.HOTSPOT_COLORS["positive"], lw=1.9, label="hotspot (|E| ≥ action level)"),
+            Line2D([], [], color=st.PROBABLE_COLOR, lw=1.3, ls=(0, (2, 2)), label="P(exceed) ≥ 0.5"),
+        ]
+    fig.legend(handles=handles, loc="upper left", bbox_to_anchor=(0.795, 0.25), frameon=False, fontsize=7)
+
+
+def _hotspot_rows(products: Products) -> list[list[str]]:
+    f = products.findings
+    unit = products.display_unit
+    rows = []
+    for h in (*f.hotspots, *f.zone_hotspots):
+        near = f"{h.nearest_asset} ({h.nearest_asset_m:.1f} m)" if h.nearest_asset is not None else "-"
+        rows.append([
+            h.id, h.polarity, h.status, f"{h.area_m2:.1f}", format_field(h.peak_v_per_m, unit, 3),
+            "-" if h.max_reading_v_per_m is None else format_field(h.max_reading_v_per_m, unit, 3),
+            "-" if h.p_exceed_max is None else f"{h.p_exceed_max:.2f}", str(len(h.reading_ids)),
+            textwrap.shorten(near, 22, placeholder="…"),
+        ])
+    return rows
+
+
+def draw_findings_page(fig: Figure, products: Products) -> None:
+    """Page 2: hotspot table, violations, conditions, meter, method and CV, std map, cautions."""
+    p = products
+    f = p.findings
+    unit = p.display_unit
+    _title(fig, p, "findings")
+    col = _Column(fig, 0.04, 0.895, 0.52)
+
+    col.heading("Hotspots")
+    if f is None:
+        col.para(f"No field model, so no hotspots: {p.no_field_reason}.")
+        exceeding = [r for r in p.readings if abs(r.value_v_per_m) >= p.threshold_v_per_m]
+        col.para(f"{len(exceeding)} of {len(p.readings)} readings are at or above the action level "
+                 f"{format_field(p.threshold_v_per_m, unit)}.")
+    else:
+        rows = _hotspot_rows(p)
+        if rows:
+            stops = (0.0, 0.032, 0.092, 0.157, 0.207, 0.272, 0.347, 0.392, 0.445)
+            col.row(["id", "polarity", "status", "area m²", "peak est.", "max reading", "P max", "readings",
+                     "nearest asset"], stops, bold=True)
+            for row in rows[:MAX_HOTSPOT_ROWS]:
+                col.row(row, stops)
+            if len(rows) > MAX_HOTSPOT_ROWS:
+                col.para(f"... and {len(rows) - MAX_HOTSPOT_ROWS} more in the GeoPackage's hotspots layer.", 7.5)
+        else:
+            col.para(f"No region reaches the action level {format_field(p.threshold_v_per_m, unit)}.")
+        if f.probable:
+            extra = [r for r in f.probable if not r.hotspot_ids]
+            col.para(f"{len(f.probable)} region(s) where P(|E| ≥ action level) ≥ 0.5"
+                     + (f", {len(extra)} of them outside every hotspot (measure there)." if extra else "."), 7.5)
+        if f.unmapped_exceedances:
+            col.para(f"Readings at or above the action level outside every hotspot: "
+                     f"{', '.join(map(str, f.unmapped_exceedances[:12]))}.", 7.5)
+
+    col.heading("Limit violations")
+    if f is None:
+        col.para("Not checked without a field model.")
+    elif f.violations:
+        for v in f.violations[:5]:
+            col.para("• " + v.message, 7.5)
+        if len(f.violations) > 5:
+            col.para(f"... and {len(f.violations) - 5} more in the violations layer.", 7.5)
+    else:
+        col.para("None: no sensitive asset is closer to a high-field region than the keep-away rules allow "
+                 "(" + "; ".join(r.text for r in f.rules) + ").", 7.5)
+    col.para(LIMITS_ARE_DEFAULTS, 7.0, color="#444444")
+
+    col.heading("Conditions")
+    ranges = p.condition_ranges()
+    rh, temp = ranges["rh_percent"], ranges["temperature_c"]
+    if p.conditions:
+        col.para(f"{len(p.conditions)} condition notes; RH "
+                 + (f"{rh[0]:g}–{rh[1]:g} %" if rh else "not noted") + "; temperature "
+                 + (f"{temp[0]:g}–{temp[1]:g} °C" if temp else "not noted") + ".")
+        notes = [c.note for c in p.conditions if c.note]
+        if notes:
+            col.para("Notes: " + "; ".join(notes[:4]) + ("; ..." if len(notes) > 4 else ""), 7.5)
+        if rh and rh[0] < 30:
+            col.para("Low humidity (< 30 % RH) raises charging; fields may be lower on a humid day.", 7.5)
+    else:
+        col.para("No conditions were noted (note RH and temperature at the start and end of each survey).")
+
+    col.heading("Meter and calibration")
+    for m in p.meters:
+        cal = (f"calibrated {m.calibration_date.isoformat()}" if m.calibration_date else "calibration date not recorded")
+        due = f", due {m.due_date.isoformat()}" if m.due_date else ""
+        fit = (f", gain {m.gain:.4g}, offset {format_field(m.offset_v_per_m, unit, 3)}" if m.calibrated else "")
+        col.para(f"{m.id}: {m.description or 'no description'}"
+                 + (f", serial {m.serial}" if m.serial else "")
+                 + f", specified at {m.distance_m * 100:.3g} cm; {cal}{due}{fit}.", 7.5)
+    if p.corrections is not None:
+        col.para("Corrections applied: " + (", ".join(p.corrections.applied) or "none") + ".", 7.5)
+
+    if f is not None and f.advice:
+        col.heading("Next readings")
+        for s_ in f.advice[:4]:
+            where = f"point {s_.point}" if s_.point else f"x {s_.x:.1f} m, y {s_.y:.1f} m"
+            col.para(f"{s_.rank}. {where}: {s_.why}", 7.2)
+
+    col.heading("Method and cross-validation")
+    if p.grid is None:
+        col.para(p.no_field_reason or "No field model.", 7.5)
+    else:
+        g = p.grid
+        col.para(f"{g.method}, cell {g.cell_m:g} m. {g.reason}", 7.5)
+        if g.params.get("variogram_text"):
+            col.para(f"Variogram: {g.params['variogram_text']}.", 7.5)
+        table = g.cv_table or ((g.cv,) if g.cv else ())
+        if table:
+            stops = (0.0, 0.09, 0.17, 0.25, 0.34, 0.43)
+            col.row(["method", "RMSE", "MAE", "mean error", "mean z", "RMS z"], stops, bold=True)
+            for c in table:
+                col.row([c.method + (" *" if c.method == g.method else ""),
+                         format_field(c.rmse_v_per_m, unit, 3), format_field(c.mae_v_per_m, unit, 3),
+                         format_field(c.mean_error_v_per_m, unit, 3),
+                         "-" if c.mean_standardized is None else f"{c.mean_standardized:.2f}",
+                         "-" if c.rms_standardized is None else f"{c.rms_standardized:.2f}"], stops)
+            col.para("Leave-one-out: each reading predicted from the others. z = error / predicted standard "
+                     "deviation; mean z near 0 and RMS z near 1 mean the stated uncertainty is honest.", 6.8,
+                     color="#444444")
+
+    # Right: the standard deviation map.
+    ax = fig.add_axes((0.60, 0.40, 0.36, 0.46))
+    ax.set_title("Uncertainty: standard deviation of the estimate", fontsize=9.5, loc="left",
+                 color="#1b3a6b", fontweight="bold")
+    _frame_axes(ax, p)
+    g = p.grid
+    if g is not None and np.isfinite(g.std).any():
+        std = np.ma.masked_invalid(from_si(1.0, unit) * np.asarray(g.std, dtype=float))
+        c = g.cell_m
+        mesh = ax.pcolormesh(np.append(g.x - c / 2, g.x[-1] + c / 2), np.append(g.y - c / 2, g.y[-1] + c / 2),
+                             std, cmap=_std_cmap(), vmin=0.0, shading="flat", zorder=1, rasterized=True)
+        cb = fig.colorbar(mesh, ax=ax, fraction=0.04, pad=0.02)
+        cb.set_label(f"standard deviation ({unit})", fontsize=7.5)
+        cb.ax.tick_params(labelsize=6.5)
+    else:
+        reason = "no field model" if g is None else f"method {g.method} gives no standard deviation"
+        ax.text(0.5, 0.5, reason, transform=ax.transAxes, ha="center", va="center", fontsize=8)
+    _draw_site(ax, p, labels=False)
+    if p.readings:
+        xy = np.array([(r.reading.x, r.reading.y) for r in p.readings])
+        ax.scatter(xy[:, 0], xy[:, 1], s=2, c="#111111", zorder=10)
+    fig.text(0.60, 0.365, "Low where readings are dense, high in gaps. Where the estimate is near the action "
+             "level and the deviation is large, take more readings (advice layer).", fontsize=7,
+             va="top", color="#444444", wrap=True)
+
+    # Bottom right: the cautions box, sized to its text.
+    left, top, width = 0.60, 0.30, 0.36
+    cc = _Column(fig, left + 0.012, top, width - 0.024)
+    cc.heading("Cautions")
+    for text in CAUTIONS:
+        cc.para("• " + text, 7.4)
+        cc.gap(2)
+    bottom = cc.y - 0.01
+    fig.patches.append(FancyBboxPatch((left, bottom), width, top + 0.012 - bottom, boxstyle="round,pad=0.006",
+                                      transform=fig.transFigure, facecolor="#fff6d6", edgecolor="#b58900",
+                                      linewidth=1.0, zorder=-1))
+
+
+def write_report(products: Products, pdf_path: str | Path, *, png_path: str | Path | None = None,
+                 dpi: int = 160) -> ReportResult:
+    """Write the PDF report (and optionally the map page as PNG).
+
+    Parameters
+    ----------
+    products : Products
+        Output of :func:`~mapper.export.pipeline.survey_products`.
+    pdf_path : str or Path
+        Target ``.pdf``; replaced if it exists.
+    png_path : str or Path, optional
+        Also write the map alone as PNG here.
+    dpi : int
+        Resolution of the PNG, dots per inch.
+
+    Returns
+    -------
+    ReportResult
+    """
+    pdf_path = Path(pdf_path)
+    if not pdf_path.parent.exists():
+        raise MapperError("folder does not exist", where=str(pdf_path.parent))
+    if pdf_path.suffix.lower() != ".pdf":
+        raise MapperError(f"output {pdf_path.name!r} should end in .pdf", where=str(pdf_path))
+    png = Path(png_path) if png_path is not None else None
+    meta = {"Title": f"{products.name}: electrostatic field survey", "Author": products.operator or "",
+            "Subject": "field map and findings", "Creator": f"mapper {__version__}"}
+    with matplotlib.rc_context(RC):
+        pages = [draw_map_page, draw_findings_page]
+        figures = []
+        for draw in pages:
+            fig = Figure(figsize=PAGE_SIZE_IN)
+            draw(fig, products)
+            figures.append(fig)
+        with PdfPages(pdf_path, metadata=meta) as pdf:
+            for fig in figures:
+                pdf.savefig(fig)
+        if png is not None:
+            figures[0].savefig(png, dpi=dpi, facecolor="white")
+    return ReportResult(pdf_path, png, len(figures))
+
+
+__all__ = ["PAGE_SIZE_IN", "SECTIONS", "ReportResult", "draw_findings_page", "draw_map_page", "write_report"]

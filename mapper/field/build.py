@@ -1,0 +1,284 @@
+"""From readings and a site outline to a :class:`FieldGrid`: the call the CLI and app make."""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+import shapely
+from scipy.spatial import cKDTree
+
+from mapper.errors import MapperError
+from mapper.field import checks
+from mapper.field.crossval import cv_stats
+from mapper.field.fit import VariogramFit, fit_variogram
+from mapper.field.idw import IDW
+from mapper.field.kriging import OrdinaryKriging, UniversalKriging
+from mapper.field.model import CVStats, FieldGrid
+from mapper.field.rbf import RBF, _cv_subset
+from mapper.field.repeats import merge_repeats
+from mapper.field.variogram import Variogram
+
+#: Methods accepted by :func:`build_field`.
+METHODS = ("auto", "kriging", "universal", "rbf", "idw")
+#: Default grid is capped at this many nodes (cell widened to fit).
+MAX_NODES = 250_000
+#: A grid asked for with more nodes than this is refused.
+HARD_MAX_NODES = 4_000_000
+#: Nodes of the terminal app's fast-path grid (about 100 x 60).
+FAST_NODES = 6_000
+#: Moving neighbourhood size when one is needed and none was given.
+DEFAULT_NEIGHBORS = 32
+#: A kriging candidate within this fraction of the best LOO RMSE is preferred, since it also
+#: gives a standard deviation (common practice, no source).
+KRIGING_PREFERENCE = 0.02
+_FIT_MODELS = ("exponential", "spherical", "gaussian")
+_WHERE = "build_field"
+
+
+def _nice(step: float) -> float:
+    """Round a cell size up to 1, 2, 2.5 or 5 times a power of ten, metres."""
+    if step <= 0:
+        return 1.0
+    p = 10.0 ** math.floor(math.log10(step))
+    for m in (1.0, 2.0, 2.5, 5.0, 10.0):
+        if step <= m * p * (1 + 1e-9):
+            return m * p
+    return 10.0 * p
+
+
+def data_spacing(xy: np.ndarray) -> float:
+    """Median distance from each position to its nearest other position, metres."""
+    if xy.shape[0] < 2:
+        return 0.0
+    d, _ = cKDTree(xy).query(xy, k=2)
+    return float(np.median(d[:, 1]))
+
+
+def default_cell(xy: np.ndarray, bounds: tuple[float, float, float, float], max_nodes: int) -> float:
+    """Cell size: a third of the data spacing, widened to keep the grid under ``max_nodes``.
+
+    A third of the spacing resolves what the readings can show (common practice, no source).
+    """
+    w, h = bounds[2] - bounds[0], bounds[3] - bounds[1]
+    spacing = data_spacing(xy)
+    cell = spacing / 3.0 if spacing > 0 else max(w, h) / 100.0
+    cell = max(cell, math.sqrt(w * h / max_nodes))
+    cell = _nice(cell)
+    while math.ceil(w / cell) * math.ceil(h / cell) > max_nodes:
+        cell = _nice(cell * 1.01)
+    return cell
+
+
+def grid_axes(bounds: tuple[float, float, float, float], cell_m: float) -> tuple[np.ndarray, np.ndarray]:
+    """Cell-centre coordinates covering ``bounds`` (minx, miny, maxx, maxy), metres."""
+    nx = max(1, math.ceil((bounds[2] - bounds[0]) / cell_m - 1e-9))
+    ny = max(1, math.ceil((bounds[3] - bounds[1]) / cell_m - 1e-9))
+    return bounds[0] + cell_m * (np.arange(nx) + 0.5), bounds[1] + cell_m * (np.arange(ny) + 0.5)
+
+
+def default_share_m(xy: np.ndarray, cell_m: float, fast: bool = False) -> float | None:
+    """Side of the squares of grid nodes that share one kriging neighbourhood, metres.
+
+    Whole cells up to the mean data spacing sqrt(bounding-box area / n); None (every node its
+    own neighbourhood) when that is under 2 cells, except on the fast path (at least 2 x 2 cells).
+    The difference this makes against per-node neighbourhoods is measured by
+    ``benchmarks/field.py`` (our own choice, no source).
+    """
+    ext = xy.max(axis=0) - xy.min(axis=0)
+    mean_spacing = math.sqrt(max(float(ext[0] * ext[1]), 0.0) / max(xy.shape[0], 1))
+    cells = math.floor(mean_spacing / cell_m + 1e-9)
+    if fast:
+        return max(2, cells) * cell_m
+    return cells * cell_m if cells >= 2 else None
+
+
+def _plane_residuals(xy: np.ndarray, z: np.ndarray) -> np.ndarray:
+    a = np.column_stack([np.ones(xy.shape[0]), xy - xy.mean(axis=0)])
+    coef, *_ = np.linalg.lstsq(a, z, rcond=None)
+    return z - a @ coef
+
+
+def _fit(xy: np.ndarray, z: np.ndarray, fast: bool) -> VariogramFit:
+    if fast:
+        return fit_variogram(xy, z, "exponential", max_pairs=200_000)
+    fits = [fit_variogram(xy, z, m) for m in _FIT_MODELS]
+    return max(fits, key=lambda f: f.r2)
+
+
+def _kriging_setup(kind, merged, variogram, neighbors, n_targets, cell, spacing, fast):
+    """Build an unfitted kriging estimator and the variogram description for it."""
+    n = merged.xy.shape[0]
+    fit = None
+    if variogram is None:
+        z = merged.values if kind == "kriging" else _plane_residuals(merged.xy, merged.values)
+        fit = _fit(merged.xy, z, fast)
+        variogram = fit.variogram
+    if neighbors is None:
+        small = n <= DEFAULT_NEIGHBORS or (not fast and n <= 3000 and n * n * max(n_targets, 1) <= 3e10)
+        neighbors = None if small else DEFAULT_NEIGHBORS
+    share = default_share_m(merged.xy, cell, fast) if neighbors is not None else None
+    cls = OrdinaryKriging if kind == "kriging" else UniversalKriging
+    est = cls(variogram=variogram, neighbors=neighbors, share_m=share)
+    params = {
+        "variogram": variogram.to_dict(),
+        "variogram_text": variogram.describe(),
+        "variogram_fit": None if fit is None else fit.to_dict(),
+        "neighbors": neighbors,
+        "share_m": share,
+        "nugget_as_error": False,
+    }
+    if kind == "universal":
+        params["drift"] = "linear"
+    return est, params
+
+
+def build_field(
+    xy,
+    values,
+    outline,
+    *,
+    method: str = "auto",
+    cell_m: float | None = None,
+    neighbors: int | None = None,
+    variogram: Variogram | None = None,
+    fast: bool = False,
+) -> FieldGrid:
+    """Interpolate readings onto a grid over the site outline.
+
+    Parameters
+    ----------
+    xy : array_like, shape (n, 2)
+        Reading positions, site metres.
+    values : array_like, shape (n,)
+        Readings, V/m.
+    outline : shapely Polygon or MultiPolygon
+        Site outline, site metres; estimates are NaN outside it.
+    method : str
+        ``auto`` (lowest leave-one-out RMSE, see :data:`KRIGING_PREFERENCE`), ``kriging``
+        (ordinary), ``universal`` (linear drift), ``rbf`` (thin-plate spline) or ``idw``.
+    cell_m : float, optional
+        Grid cell, metres; default from the data spacing, capped to :data:`MAX_NODES` nodes.
+    neighbors : int, optional
+        Moving neighbourhood size; default global for small problems, else 32 (kriging),
+        64 (RBF), 16 (IDW).
+    variogram : Variogram, optional
+        Used as is (no fitting) by the kriging methods.
+    fast : bool
+        Terminal app path: about 100 x 60 nodes, ordinary kriging (for ``auto``), cheap
+        variogram fit, moving neighbourhood, no method comparison.
+
+    Returns
+    -------
+    FieldGrid
+    """
+    method = checks.choose(method, METHODS, "method", _WHERE)
+    xy, z = checks.readings(xy, values, _WHERE, minimum=1)
+    if variogram is not None and not isinstance(variogram, Variogram):
+        raise MapperError(f"variogram must be a Variogram, got {type(variogram).__name__}", where=_WHERE)
+    if not isinstance(outline, shapely.Polygon | shapely.MultiPolygon) or outline.is_empty or outline.area <= 0:
+        raise MapperError(
+            f"outline must be a non-empty shapely Polygon or MultiPolygon in site metres, got {outline!r:.80}",
+            where=_WHERE,
+        )
+    if neighbors is not None and (isinstance(neighbors, bool) or int(neighbors) < 3):
+        raise MapperError(f"neighbors must be an integer >= 3, got {neighbors!r}", where=_WHERE)
+    merged = merge_repeats(xy, z)
+    n = merged.xy.shape[0]
+    bounds = tuple(float(b) for b in outline.bounds)
+    if cell_m is None:
+        cell = default_cell(merged.xy, bounds, FAST_NODES if fast else MAX_NODES)
+    else:
+        cell = checks.positive(cell_m, "cell size cell_m (metres)", _WHERE)
+        nodes = math.ceil((bounds[2] - bounds[0]) / cell) * math.ceil((bounds[3] - bounds[1]) / cell)
+        if nodes > HARD_MAX_NODES:
+            raise MapperError(
+                f"cell {cell:g} m gives {nodes} grid nodes over the outline; at most "
+                f"{HARD_MAX_NODES} are accepted (use a larger cell)",
+                where=_WHERE,
+            )
+    gx, gy = grid_axes(bounds, cell)
+    mx, my = np.meshgrid(gx, gy)
+    inside = shapely.contains_xy(outline, mx, my)
+    targets = np.column_stack([mx[inside], my[inside]])
+    spacing = data_spacing(merged.xy)
+
+    if method == "auto":
+        kinds = ["kriging"] if fast else ["kriging", "universal", "rbf", "idw"]
+    else:
+        kinds = [method]
+    notes: list[str] = []
+    candidates: dict[str, tuple[object, dict]] = {}
+    for kind in kinds:
+        try:
+            if kind in ("kriging", "universal"):
+                est, params = _kriging_setup(kind, merged, variogram, neighbors, targets.shape[0], cell, spacing, fast)
+            elif kind == "rbf":
+                nb = neighbors if neighbors is not None else (None if n <= 1000 else 64)
+                est, params = RBF(neighbors=nb), {"kernel": "thin_plate_spline", "neighbors": nb}
+            else:
+                nb = neighbors if neighbors is not None else 16
+                est, params = IDW(neighbors=nb), {"power": 2.0, "neighbors": nb}
+            est.fit(xy, z)
+        except MapperError as exc:
+            if method != "auto":
+                raise
+            notes.append(f"{kind} skipped: {exc.message}")
+            continue
+        if kind == "rbf":
+            params["smoothing"] = est.smoothing_
+        candidates[kind] = (est, params)
+    if not candidates:
+        raise MapperError("no method could be fitted: " + "; ".join(notes), where=_WHERE)
+
+    table: list[CVStats] = []
+    if n >= 3:
+        at = _cv_subset(n, 300 if fast else 2000)
+        for kind, (est, _) in candidates.items():
+            err, std = est.loo(at)
+            table.append(cv_stats(kind, err, std))
+    by_kind = {c.method: c for c in table}
+    if len(candidates) == 1:
+        chosen = next(iter(candidates))
+        reason = "fast path: ordinary kriging without method comparison" if fast and method == "auto" else f"method {chosen} requested"
+    else:
+        best = min(table, key=lambda c: c.rmse_v_per_m)
+        chosen = best.method
+        reason = f"{chosen}: lowest leave-one-out RMSE {best.rmse_v_per_m:.4g} V/m"
+        if chosen in ("rbf", "idw"):
+            krig = [c for c in table if c.method in ("kriging", "universal")]
+            if krig:
+                kb = min(krig, key=lambda c: c.rmse_v_per_m)
+                if kb.rmse_v_per_m <= best.rmse_v_per_m * (1 + KRIGING_PREFERENCE):
+                    chosen = kb.method
+                    reason = (
+                        f"{chosen}: leave-one-out RMSE {kb.rmse_v_per_m:.4g} V/m, within "
+                        f"{KRIGING_PREFERENCE:.0%} of {best.method} ({best.rmse_v_per_m:.4g} V/m) and it "
+                        "also gives a standard deviation"
+                    )
+        others = ", ".join(f"{c.method} {c.rmse_v_per_m:.4g}" for c in table if c.method != chosen)
+        reason += f" (others: {others} V/m)"
+    if notes:
+        reason += "; " + "; ".join(notes)
+
+    est, params = candidates[chosen]
+    e, s = est.predict(targets)
+    estimate = np.full(mx.shape, np.nan)
+    std = np.full(mx.shape, np.nan)
+    estimate[inside] = e
+    std[inside] = s
+    params = dict(params)
+    params.update(
+        {
+            "cell_m": cell,
+            "n_readings": int(xy.shape[0]),
+            "n_positions": int(n),
+            "repeatability_v_per_m": merged.repeatability_v_per_m,
+            "data_spacing_m": spacing,
+            "fast": bool(fast),
+        }
+    )
+    return FieldGrid(
+        x=gx, y=gy, estimate=estimate, std=std, method=chosen, params=params,
+        cv=by_kind.get(chosen), cv_table=tuple(table), reason=reason,
+    )

@@ -1,0 +1,77 @@
+"""Live map pieces: colours, pixel placement, the refit and its stand-ins."""
+
+from __future__ import annotations
+
+from datetime import UTC, datetime
+
+import numpy as np
+import pytest
+import shapely
+
+from mapper.app import live
+from mapper.app.palette import DIVERGING, diverging, hex_rgb, nice_ceiling, sequential
+from mapper.app.raster import make_frame
+from mapper.readings.model import Reading
+from mapper.site.model import Site
+
+
+def test_diverging_palette_reads_sign():
+    # ColorBrewer RdBu (Brewer, colorbrewer2.org): the neutral class sits at zero, the darkest
+    # blue at -scale and the darkest red at +scale.
+    c = diverging(np.array([-2.0, -1.0, 0.0, 1.0, 5.0]), 1.0)
+    assert tuple(c[2]) == hex_rgb(DIVERGING[5])
+    assert tuple(c[1]) == tuple(c[0]) == hex_rgb(DIVERGING[0])  # saturates beyond the scale
+    assert tuple(c[3]) == tuple(c[4]) == hex_rgb(DIVERGING[-1])
+    assert c[3][0] > c[3][2] and c[1][2] > c[1][0]  # positive is red, negative is blue
+    s = sequential(np.array([0.0, 1.0]), 1.0)
+    assert tuple(s[0]) == hex_rgb("#440154") and tuple(s[1]) == hex_rgb("#fde725")  # viridis ends
+
+
+def test_nice_ceiling():
+    assert [nice_ceiling(v) for v in (0.7, 1.0, 1.2, 2.2, 4921.3, 30000)] == [1, 1, 2, 2.5, 5000, 50000]
+
+
+def test_frame_keeps_pixels_square_and_round_trips():
+    frame = make_frame((0.0, 0.0, 10.0, 6.0), 60, 20)  # 60 x 40 pixels
+    assert frame.m_per_px == pytest.approx(max(10 / 58, 6 / 38))
+    for x, y in ((0.1, 0.1), (5, 3), (9.9, 5.9)):
+        col, row = frame.to_pixel(x, y)
+        cx, cy = frame.to_site(col, row)
+        assert abs(cx - x) <= frame.m_per_px / 2 + 1e-9 and abs(cy - y) <= frame.m_per_px / 2 + 1e-9
+    assert frame.to_pixel(5, 5.9)[1] < frame.to_pixel(5, 0.1)[1]  # y grows upward on screen
+
+
+def _readings(xy, values):
+    t = datetime(2025, 1, 1, tzinfo=UTC)
+    return [Reading(i + 1, x, y, v, v, "V/m", t) for i, ((x, y), v) in enumerate(zip(xy, values, strict=True))]
+
+
+def test_idw_stand_in_reproduces_a_constant_field():
+    # Exact property: inverse-distance weights sum to one, so a constant field is reproduced.
+    outline = shapely.box(0, 0, 10, 6)
+    xy = np.array([[1, 1], [9, 1], [5, 5], [2, 4]], float)
+    grid = live._idw_stand_in(xy, np.full(4, 250.0), outline)
+    assert np.nanmax(np.abs(grid.estimate - 250.0)) < 1e-9
+    assert np.isfinite(grid.estimate).all()  # the box fills its bounds
+
+
+def test_count_stand_in_counts_both_signs():
+    grid = live.LiveGrid(
+        np.arange(5.0), np.arange(3.0),
+        np.array([[0, 0, 0, 0, 0], [9, 0, 0, 0, -9], [0, 0, 0, 0, 0]], float), np.full((3, 5), np.nan), "test",
+    )
+    spots, count, _, _ = live._count_stand_in(grid, 5.0)
+    assert count == 2 and {s["polarity"] for s in spots} == {"positive", "negative"}
+
+
+def test_refit_needs_enough_positions_then_maps():
+    site = Site("box", shapely.box(0, 0, 10, 6))
+    few = _readings([(1, 1), (1, 1), (3, 1)], [10, 12, 20])
+    assert live.refit(few, site, 100.0, []).grid is None  # 2 distinct positions
+    rng = np.random.default_rng(1)
+    xy = rng.uniform((0, 0), (10, 6), (12, 2))
+    values = 400 * np.exp(-((xy[:, 0] - 3) ** 2 + (xy[:, 1] - 3) ** 2) / 4)
+    result = live.refit(_readings(xy, values), site, 200.0, [])
+    assert result.grid is not None and result.readings == 12
+    assert np.nanmax(result.grid.estimate) <= values.max() + 1e-6  # IDW never overshoots
+    assert live.refit(_readings(xy, values), site, 200.0, [], cancelled=lambda: True) is None

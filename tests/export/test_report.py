@@ -1,0 +1,80 @@
+"""The PDF report: pages, sections, real text, and a page 1 that is not blank."""
+
+from __future__ import annotations
+
+import numpy as np
+import pypdfium2 as pdfium
+import pytest
+
+from mapper.export.report import SECTIONS, write_report
+from mapper.features import CAUTIONS
+from mapper.units import format_field
+
+
+@pytest.fixture(scope="module")
+def report(hall, tmp_path_factory):
+    folder = tmp_path_factory.mktemp("report")
+    result = write_report(hall["products"], folder / "hall.pdf", png_path=folder / "hall.png")
+    doc = pdfium.PdfDocument(result.pdf)
+    texts = [doc[i].get_textpage().get_text_range() for i in range(len(doc))]
+    yield {"result": result, "doc": doc, "texts": texts, "products": hall["products"]}
+    doc.close()
+
+
+def _flat(text: str) -> str:
+    return " ".join(text.split())
+
+
+def test_pages_and_sections(report):
+    assert len(report["doc"]) == report["result"].pages == 2
+    page1, page2 = (_flat(t) for t in report["texts"])
+    p = report["products"]
+    assert "electrostatic field map" in page1
+    assert f"field estimate ({p.display_unit})" in page1  # labelled colour bar in the display unit
+    assert "action level" in page1 and "N" in page1  # north arrow: the sample is georeferenced
+    assert "10 m" in page1  # scale bar
+    for h in p.findings.hotspots:
+        assert h.id in page1 and h.id in page2
+    # contour labels as text; matplotlib leaves out labels that do not fit on short lines
+    long_lines = [i.label for i in p.findings.isolines if i.length_m > 8.0]
+    assert long_lines
+    for label in long_lines:
+        assert label.replace(" ", "") in page1.replace(" ", "")
+    for section in SECTIONS:
+        assert section in page2, section
+    assert "RH 29–34 %" in page2  # the sample's conditions
+    assert format_field(p.threshold_v_per_m, p.display_unit) in page2
+    assert p.grid.method in page2 and "RMSE" in page2
+    # Each caution is there as text (compare the first words; the box wraps lines).
+    for caution in CAUTIONS:
+        assert " ".join(caution.split()[:6]) in page2
+
+
+def test_text_is_embedded_truetype(report):
+    data = report["result"].pdf.read_bytes()
+    assert b"/FontFile2" in data  # pdf.fonttype 42: TrueType fonts embedded, text stays text
+    assert b"/Type3" not in data
+
+
+def test_page_one_renders_not_blank(report, tmp_path):
+    image = report["doc"][0].render(scale=1.0).to_pil().convert("RGB")
+    out = tmp_path / "page1.png"
+    image.save(out)
+    pixels = np.asarray(image).reshape(-1, 3)
+    non_white = (pixels < 245).any(axis=1).mean()
+    colours = len(np.unique(pixels // 16, axis=0))
+    # A map page is mostly ink: bands cover the site (over a third of the page here).
+    assert non_white > 0.25, non_white
+    assert colours > 30, colours
+    # Both sides of the diverging ramp appear: bluish and reddish pixels (the sample has negative
+    # and positive bands; the palest band colours differ by about 30 between red and blue).
+    r, b = pixels[:, 0].astype(int), pixels[:, 2].astype(int)
+    assert ((b - r) > 20).mean() > 0.01 and ((r - b) > 20).mean() > 0.01
+
+
+def test_png_map_alone(report):
+    from PIL import Image
+
+    png = report["result"].png
+    with Image.open(png) as im:
+        assert im.size[0] > 1500 and im.size[0] > im.size[1]  # A4 landscape at 160 dpi
