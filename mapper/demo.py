@@ -34,6 +34,7 @@ def run_demo(out: Path, samples: Path = SAMPLES) -> Iterator[str]:
         ["import", str(survey), str(samples / "north_hall_conditions.csv")],
         ["import", str(survey), str(samples / "north_hall_readings.csv")],
         ["info", str(survey)],
+        ["grid", str(survey)],
         ["hotspots", str(survey)],
         ["export", str(survey), str(out / "north_hall.gpkg"), "--csv", str(out / "north_hall_readings.csv")],
         ["report", str(survey), str(out / "north_hall.pdf"), "--png"],

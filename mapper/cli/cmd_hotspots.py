@@ -1,151 +1,20 @@
 """``mapper hotspots``: where a survey's field reaches the action level, and what is too close.
 
-Reads the survey, corrects its readings, takes the stored field model (or interpolates one when
-none is stored or the readings changed since), and prints the findings of
-:func:`mapper.features.analyse`: hotspots, zone limits, probable exceedance, keep-away checks,
-places to measure next, and the cautions.
+Runs :func:`mapper.export.pipeline.survey_products` on the survey (corrected readings, the stored
+field model or one interpolated now when none is stored or the readings changed since) and
+prints its findings (:func:`mapper.features.analyse`): hotspots, zone limits, probable
+exceedance, keep-away checks, places to measure next, and the cautions.
 """
 
 from __future__ import annotations
 
 import json
-from dataclasses import dataclass
 
 import numpy as np
 
 from mapper.cli.common import fmt, say, table, threshold_arg, warn
-from mapper.corrections import MeterProfile, correct
-from mapper.errors import MapperError
-from mapper.features import Findings, analyse
-from mapper.features.hotspots import EXCLUDING_FLAGS
-from mapper.field import METHODS, build_field, field_from_bytes
-from mapper.field.model import FieldGrid
-from mapper.plan.grid import PlanPoint
-from mapper.readings.model import CorrectedReading
-from mapper.site.model import Site
-from mapper.survey.store import Survey
-
-
-@dataclass(frozen=True)
-class SurveyInputs:
-    """What the map-feature commands need from one survey file.
-
-    Attributes
-    ----------
-    path : str
-        Survey file.
-    name : str
-        Survey name.
-    site : Site
-        The site, metres.
-    grid : FieldGrid
-        Field model, V/m.
-    readings : tuple of CorrectedReading
-        Corrected field readings (excluded ones included, flagged).
-    threshold_v_per_m : float
-        Action level, V/m (the command line's, else the survey's).
-    threshold_source : str
-        ``command line`` or ``survey``.
-    unit : str
-        Display unit.
-    planned : tuple of PlanPoint
-        Planned grid points.
-    field_note : str
-        Where the field model came from.
-    warnings : tuple of str
-        Warnings from the corrections and the field model.
-    """
-
-    path: str
-    name: str
-    site: Site
-    grid: FieldGrid
-    readings: tuple[CorrectedReading, ...]
-    threshold_v_per_m: float
-    threshold_source: str
-    unit: str
-    planned: tuple[PlanPoint, ...]
-    field_note: str
-    warnings: tuple[str, ...]
-
-
-def load_survey_inputs(path: str, threshold_v_per_m: float | None = None) -> SurveyInputs:
-    """Open a survey read-only and gather its site, corrected readings and field model.
-
-    Parameters
-    ----------
-    path : str
-        Survey file.
-    threshold_v_per_m : float, optional
-        Action level from the command line, V/m; default the survey's own.
-
-    Returns
-    -------
-    SurveyInputs
-    """
-    with Survey.open(path) as survey:
-        name = survey.name
-        site = survey.site
-        planned = survey.plan.points
-        unit = survey.display_unit
-        survey_threshold = survey.threshold_v_per_m
-        raw = survey.readings(kind=None)
-        meters = {
-            mid: MeterProfile.from_dict(data, where=f"{path}: meter {mid}")
-            for mid, data in survey.meters().items()
-        }
-        stored = survey.latest_field()
-        changed = survey.last_change_utc()
-    result = correct(raw, meters)
-    readings = tuple(result.readings)
-    usable = [r for r in readings if not (EXCLUDING_FLAGS & (set(r.flags) | set(r.reading.flags)))]
-    if not usable:
-        raise MapperError(
-            "the survey has no field readings to map; import or record readings first", where=path
-        )
-    warnings = list(result.warnings)
-    grid: FieldGrid | None = None
-    method = "auto"
-    if stored is not None:
-        summary, data, created = stored
-        stored_grid = field_from_bytes(data)
-        if created >= changed:
-            grid = stored_grid
-            note = f"stored field model ({grid.method}, made {created})"
-        else:
-            method = stored_grid.method if stored_grid.method in METHODS else "auto"
-            warnings.append(
-                f"the stored field model ({created}) is older than the latest change to the "
-                f"readings ({changed}); interpolated again with method {method} "
-                "(run 'mapper grid' to store a new one)"
-            )
-    if grid is None:
-        xy = np.array([(r.reading.x, r.reading.y) for r in usable], dtype=float)
-        values = np.array([r.value_v_per_m for r in usable], dtype=float)
-        grid = build_field(xy, values, site.outline, method=method)
-        note = f"interpolated now ({grid.method}); not stored"
-        if stored is None:
-            warnings.append(
-                "no field model stored in the survey; interpolated one now "
-                "(run 'mapper grid' to choose the method and store it)"
-            )
-    if threshold_v_per_m is None:
-        threshold, source = survey_threshold, "survey"
-    else:
-        threshold, source = float(threshold_v_per_m), "command line"
-    return SurveyInputs(
-        path=str(path),
-        name=name,
-        site=site,
-        grid=grid,
-        readings=readings,
-        threshold_v_per_m=threshold,
-        threshold_source=source,
-        unit=unit,
-        planned=tuple(planned),
-        field_note=note,
-        warnings=tuple(warnings),
-    )
+from mapper.export.pipeline import Products, survey_file_products
+from mapper.features import Findings
 
 
 def register(sub) -> None:
@@ -167,30 +36,22 @@ def register(sub) -> None:
 
 
 def run(args) -> int:
-    inputs = load_survey_inputs(args.survey, args.threshold)
-    findings = analyse(
-        inputs.grid,
-        inputs.site,
-        inputs.readings,
-        inputs.threshold_v_per_m,
-        unit=inputs.unit,
-        planned=inputs.planned,
-    )
+    products = survey_file_products(args.survey, args.threshold).require_field()
     if args.json:
         data = {
-            "survey": inputs.name,
-            "file": inputs.path,
-            "threshold_source": inputs.threshold_source,
-            "field_model": inputs.field_note,
-            "method": inputs.grid.method,
-            "warnings": list(inputs.warnings),
-            **findings.to_dict(),
+            "survey": products.name,
+            "file": products.source,
+            "threshold_source": products.threshold_source,
+            "field_model": products.field_note,
+            "method": products.grid.method,
+            "warnings": list(products.warnings),
+            **products.findings.to_dict(),
         }
         say(json.dumps(data, indent=2, allow_nan=False, default=_json_default))
         return 0
-    for message in inputs.warnings:
+    for message in products.warnings:
         warn(message)
-    for line in report_lines(inputs, findings):
+    for line in report_lines(products):
         say(line)
     return 0
 
@@ -249,13 +110,22 @@ _HOTSPOT_HEADER = (
 )
 
 
-def report_lines(inputs: SurveyInputs, findings: Findings) -> list[str]:
-    """The text report of ``mapper hotspots``, line by line."""
+def report_lines(products: Products) -> list[str]:
+    """The text report of ``mapper hotspots``, line by line.
+
+    Parameters
+    ----------
+    products : Products
+        Output of :func:`~mapper.export.pipeline.survey_products` with a field model
+        (:meth:`~mapper.export.pipeline.Products.require_field`).
+    """
+    products.require_field()
+    findings = products.findings
     unit = findings.unit
     out = [
-        f"survey     {inputs.name}  ({inputs.path})",
-        f"field      {inputs.field_note}",
-        f"threshold  |E| >= {findings.threshold_label} ({inputs.threshold_source})",
+        f"survey     {products.name}  ({products.source})",
+        f"field      {products.field_note}",
+        f"threshold  |E| >= {findings.threshold_label} ({products.threshold_source})",
         "",
     ]
     if findings.hotspots:
@@ -278,7 +148,7 @@ def report_lines(inputs: SurveyInputs, findings: Findings) -> list[str]:
     out.append("")
     if not findings.probability_available:
         out.append(
-            f"Probable exceedance: not available; the {inputs.grid.method} field model has no "
+            f"Probable exceedance: not available; the {products.grid.method} field model has no "
             "standard deviation (use kriging)."
         )
     elif findings.probable:

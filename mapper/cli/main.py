@@ -17,6 +17,8 @@ COMMANDS = (
     "cmd_import",
     "cmd_info",
     "cmd_meter",
+    "cmd_review",
+    "cmd_grid",
     "cmd_hotspots",
     "cmd_compare",
     "cmd_export",

@@ -221,6 +221,24 @@ def correct(
     return CorrectionResult(out, applied, tuple(warnings), tuple(reports), check)
 
 
+def load_meters(survey) -> dict[str, MeterProfile]:
+    """The survey's stored meter profiles, by meter id.
+
+    Parameters
+    ----------
+    survey : mapper.survey.store.Survey
+        An open survey (read access is enough).
+
+    Returns
+    -------
+    dict of str to MeterProfile
+    """
+    return {
+        meter_id: MeterProfile.from_dict(data, where=f"{survey.path}: meter {meter_id!r}")
+        for meter_id, data in survey.meters().items()
+    }
+
+
 def correct_survey(survey, **options) -> CorrectionResult:
     """Correct a survey's current readings with its stored meter profiles.
 
@@ -231,6 +249,4 @@ def correct_survey(survey, **options) -> CorrectionResult:
     **options
         Passed to :func:`correct`.
     """
-    meters = {mid: MeterProfile.from_dict(data, where=f"{survey.path}: meter {mid!r}")
-              for mid, data in survey.meters().items()}
-    return correct(survey.readings(kind=None), meters, **options)
+    return correct(survey.readings(kind=None), load_meters(survey), **options)

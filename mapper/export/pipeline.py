@@ -1,7 +1,9 @@
 """Survey -> corrected readings -> field grid -> findings, in one call.
 
-:func:`survey_products` is the single pipeline the GeoPackage export, the PDF report and the
-terminal app share, so that all of them show the same numbers for the same survey.
+:func:`survey_products` is the single pipeline behind ``mapper hotspots``, ``mapper compare``, the
+GeoPackage export and the PDF report, so that all of them show the same numbers for the same
+survey. Which readings count is decided in :mod:`mapper.field.inputs`; meter profiles are read
+by :func:`mapper.corrections.pipeline.load_meters`.
 """
 
 from __future__ import annotations
@@ -10,26 +12,29 @@ import bisect
 import sqlite3
 from dataclasses import dataclass, field
 from datetime import datetime
-
-import numpy as np
+from pathlib import Path
 
 from mapper.corrections import CorrectionResult, MeterProfile, correct
+from mapper.corrections.pipeline import load_meters
 from mapper.errors import MapperError
 from mapper.export.crs import ExportCRS, export_crs
 from mapper.features import Findings, analyse
-from mapper.features.hotspots import EXCLUDING_FLAGS
 from mapper.field import FieldGrid, build_field, field_from_bytes
 from mapper.field.build import METHODS
+from mapper.field.inputs import (
+    MIN_FIELD_POSITIONS,
+    distinct_positions,
+    field_inputs,
+    is_excluded,
+    usable,
+)
 from mapper.readings.model import Conditions, CorrectedReading, Reading
 from mapper.site.model import Site
 from mapper.survey.store import Survey
 from mapper.units import canonical_unit
 
-#: Fewest distinct reading positions a field model is built from. Three points fix only a plane;
-#: five leave something to cross-validate (common practice, no source).
-MIN_FIELD_POSITIONS = 5
-#: Readings closer than this are one position when counting distinct positions, metres.
-_SAME_POSITION_M = 1e-6
+#: Notes that say where the field model came from start with this (they are remarks, not warnings).
+FIELD_NOTE_PREFIX = "field model:"
 
 
 @dataclass(frozen=True)
@@ -52,6 +57,8 @@ class Products:
         ``physics`` or ``atmospheric`` (how the meter signed its readings; values here are physics).
     threshold_v_per_m : float
         Action level used, V/m.
+    threshold_source : str
+        ``command line`` (given to :func:`survey_products`) or ``survey`` (the survey's own).
     operator : str
         Who surveyed.
     created_utc : str
@@ -74,12 +81,15 @@ class Products:
         The field model; ``None`` when too few readings.
     field_source : str
         ``stored`` (the survey's own model), ``built`` (made for this export) or ``""``.
+    field_note : str
+        Where the field model came from, in words; ``""`` without one.
     findings : Findings or None
         Map features of ``grid`` at ``threshold_v_per_m``.
     no_field_reason : str or None
         Why there is no field model.
     notes : tuple of str
-        Warnings and remarks for the user (site, corrections, field model).
+        Warnings and remarks for the user (site, corrections, field model); see also
+        :attr:`warnings`.
     """
 
     name: str
@@ -89,6 +99,7 @@ class Products:
     display_unit: str
     sign_convention: str
     threshold_v_per_m: float
+    threshold_source: str
     operator: str
     created_utc: str
     spacing_m: float
@@ -100,6 +111,7 @@ class Products:
     meters: tuple[MeterProfile, ...] = ()
     grid: FieldGrid | None = None
     field_source: str = ""
+    field_note: str = ""
     findings: Findings | None = None
     no_field_reason: str | None = None
     notes: tuple[str, ...] = ()
@@ -112,7 +124,26 @@ class Products:
     @property
     def used_readings(self) -> tuple[CorrectedReading, ...]:
         """The readings that enter the field model (not flagged ``excluded``)."""
-        return tuple(r for r in self.readings if not is_excluded(r))
+        return tuple(usable(self.readings))
+
+    @property
+    def warnings(self) -> tuple[str, ...]:
+        """The notes that are warnings: all but the field-model remarks and the no-field reason."""
+        return tuple(
+            n for n in self.notes if not n.startswith(FIELD_NOTE_PREFIX) and n != self.no_field_reason
+        )
+
+    def require_field(self) -> Products:
+        """These products, or a one-line :class:`MapperError` naming the survey and why there is no field.
+
+        Returns
+        -------
+        Products
+            ``self``, when :attr:`has_field`.
+        """
+        if not self.has_field:
+            raise MapperError(f"nothing to map: {self.no_field_reason}", where=self.source)
+        return self
 
     def time_span(self) -> tuple[datetime, datetime] | None:
         """First and last field reading time, UTC."""
@@ -139,34 +170,6 @@ class Products:
         }
 
 
-def is_excluded(reading: CorrectedReading) -> bool:
-    """True when a corrected reading is flagged to stay out of the field model."""
-    return bool(EXCLUDING_FLAGS & (set(reading.flags) | set(reading.reading.flags)))
-
-
-def field_inputs(readings) -> tuple[np.ndarray, np.ndarray]:
-    """Positions (n, 2) in metres and corrected values (n,) in V/m of the usable readings."""
-    kept = [r for r in readings if not is_excluded(r)]
-    xy = np.array([(r.reading.x, r.reading.y) for r in kept], dtype=float).reshape(-1, 2)
-    values = np.array([r.value_v_per_m for r in kept], dtype=float)
-    return xy, values
-
-
-def distinct_positions(xy: np.ndarray) -> int:
-    """Number of distinct positions among (n, 2) coordinates, metres."""
-    if xy.shape[0] == 0:
-        return 0
-    return int(np.unique(np.round(xy / _SAME_POSITION_M), axis=0).shape[0])
-
-
-def load_meters(survey: Survey) -> dict[str, MeterProfile]:
-    """The survey's meter profiles as :class:`MeterProfile` objects."""
-    return {
-        meter_id: MeterProfile.from_dict(data, where=f"{survey.path}: meter {meter_id!r}")
-        for meter_id, data in survey.meters().items()
-    }
-
-
 def _reading_extra(survey: Survey, ids: list[int]) -> dict[int, dict]:
     if not ids:
         return {}
@@ -180,14 +183,57 @@ def _reading_extra(survey: Survey, ids: list[int]) -> dict[int, dict]:
     return {int(r[0]): {"source": r[1], "recorded_utc": r[2]} for r in rows if int(r[0]) in wanted}
 
 
-def _stored_field(survey: Survey) -> tuple[FieldGrid, str] | None:
-    stored = survey.latest_field()
-    if stored is None:
-        return None
-    _, data, created = stored
-    if created < survey.last_change_utc():
-        return None
-    return field_from_bytes(data), created
+@dataclass(frozen=True)
+class _FieldModel:
+    """What :func:`_field_model` decided: the grid (or why none), where it came from, what to say."""
+
+    grid: FieldGrid | None = None
+    source: str = ""
+    note: str = ""
+    remarks: tuple[str, ...] = ()
+    reason: str | None = None
+
+
+def _field_model(
+    survey: Survey, xy, values, outline, method: str | None, cell_m: float | None, use_stored: bool
+) -> _FieldModel:
+    """The survey's stored field model when it is current, else one interpolated now.
+
+    A stored model older than the latest change to the readings is not used; the new one is
+    interpolated with the stored model's method. ``method`` or ``cell_m`` always build anew.
+    """
+    remarks: list[str] = []
+    build_method = method or "auto"
+    consult_store = use_stored and method is None and cell_m is None
+    stored = survey.latest_field() if consult_store else None
+    if stored is not None:
+        _, data, created = stored
+        stored_grid = field_from_bytes(data)
+        changed = survey.last_change_utc()
+        if created >= changed:
+            return _FieldModel(
+                stored_grid,
+                "stored",
+                f"stored field model ({stored_grid.method}, made {created})",
+                (f"{FIELD_NOTE_PREFIX} stored in the survey on {created} ({stored_grid.method})",),
+            )
+        build_method = stored_grid.method if stored_grid.method in METHODS else "auto"
+        remarks.append(
+            f"the stored field model ({created}) is older than the latest change to the "
+            f"readings ({changed}); interpolated again with method {build_method} "
+            "(run 'mapper grid' to store a new one)"
+        )
+    try:
+        grid = build_field(xy, values, outline, method=build_method, cell_m=cell_m)
+    except MapperError as exc:
+        return _FieldModel(remarks=tuple(remarks), reason=f"no field model could be built: {exc.message}")
+    remarks.append(f"{FIELD_NOTE_PREFIX} built now ({grid.reason})")
+    if consult_store and stored is None:
+        remarks.append(
+            "no field model stored in the survey; interpolated one now "
+            "(run 'mapper grid' to choose the method and store it)"
+        )
+    return _FieldModel(grid, "built", f"interpolated now ({grid.method}); not stored", tuple(remarks))
 
 
 def survey_products(
@@ -214,7 +260,9 @@ def survey_products(
         Grid cell, metres; default the field engine's choice.
     use_stored : bool
         Use the survey's stored field model when it is newer than the last change to the
-        readings and neither ``method`` nor ``cell_m`` is given.
+        readings and neither ``method`` nor ``cell_m`` is given. A stale stored model is
+        replaced by one interpolated now with its method, and a missing one by ``auto``; both
+        cases add a warning to ``notes`` (see :attr:`Products.warnings`).
     unit : str, optional
         Display unit; default the survey's.
 
@@ -239,30 +287,19 @@ def survey_products(
         readings = corrections.readings
         notes.extend(corrections.warnings)
 
-    grid = None
-    source = ""
-    reason = None
     xy, values = field_inputs(readings)
     positions = distinct_positions(xy)
-    if positions < MIN_FIELD_POSITIONS:
-        reason = (
-            f"a field model needs readings at {MIN_FIELD_POSITIONS} or more distinct positions; "
+    if positions == 0:
+        model = _FieldModel(reason="the survey has no field readings to map; import or record readings first")
+    elif positions < MIN_FIELD_POSITIONS:
+        model = _FieldModel(
+            reason=f"a field model needs readings at {MIN_FIELD_POSITIONS} or more distinct positions; "
             f"the survey has {positions}"
         )
     else:
-        stored = _stored_field(survey) if use_stored and method is None and cell_m is None else None
-        if stored is not None:
-            grid, created = stored
-            source = "stored"
-            notes.append(f"field model: stored in the survey on {created} ({grid.method})")
-        else:
-            try:
-                grid = build_field(xy, values, site.outline, method=method or "auto", cell_m=cell_m)
-            except MapperError as exc:
-                reason = f"no field model could be built: {exc.message}"
-            else:
-                source = "built"
-                notes.append(f"field model: built now ({grid.reason})")
+        model = _field_model(survey, xy, values, site.outline, method, cell_m, use_stored)
+    notes.extend(model.remarks)
+    grid, reason = model.grid, model.reason
     findings = None
     if grid is not None:
         findings = analyse(
@@ -278,6 +315,7 @@ def survey_products(
         display_unit=unit,
         sign_convention=survey.sign_convention,
         threshold_v_per_m=threshold,
+        threshold_source="survey" if threshold_v_per_m is None else "command line",
         operator=survey.get("operator", "") or "",
         created_utc=survey.get("created_utc", "") or "",
         spacing_m=survey.plan.spacing_m,
@@ -288,19 +326,42 @@ def survey_products(
         conditions=tuple(survey.conditions()),
         meters=tuple(meters[k] for k in sorted(meters)),
         grid=grid,
-        field_source=source,
+        field_source=model.source,
+        field_note=model.note,
         findings=findings,
         no_field_reason=reason,
         notes=tuple(notes),
     )
 
 
+def survey_file_products(path: str | Path, threshold_v_per_m: float | None = None, **options) -> Products:
+    """Open a survey file read-only and run :func:`survey_products` on it.
+
+    Parameters
+    ----------
+    path : str or Path
+        Survey file.
+    threshold_v_per_m : float, optional
+        Action level, V/m; default the survey's own.
+    **options
+        ``method``, ``cell_m`` (metres), ``use_stored``, ``unit``: as for :func:`survey_products`.
+
+    Returns
+    -------
+    Products
+    """
+    with Survey.open(path) as survey:
+        return survey_products(survey, threshold_v_per_m, **options)
+
+
 __all__ = [
+    "FIELD_NOTE_PREFIX",
     "MIN_FIELD_POSITIONS",
     "Products",
     "distinct_positions",
     "field_inputs",
     "is_excluded",
     "load_meters",
+    "survey_file_products",
     "survey_products",
 ]

@@ -33,15 +33,13 @@ from mapper.features._grid import (
     polygonal,
     regular_spacing,
 )
+from mapper.field.inputs import usable
 from mapper.field.model import FieldGrid
 from mapper.readings.model import CorrectedReading
 from mapper.site.model import Site
 
 POLARITIES = ("positive", "negative")
 STATUSES = ("confirmed", "suspected")
-
-#: Reading flags that keep a reading out of the findings.
-EXCLUDING_FLAGS = frozenset({"excluded"})
 
 
 @dataclass(frozen=True)
@@ -248,12 +246,7 @@ def reading_arrays(readings: Sequence[CorrectedReading]) -> tuple[np.ndarray, np
 
     Readings flagged ``excluded`` and readings of another kind than ``field`` are left out.
     """
-    kept = [
-        r
-        for r in readings
-        if not (EXCLUDING_FLAGS & (set(r.flags) | set(r.reading.flags)))
-        and getattr(r.reading, "kind", "field") == "field"
-    ]
+    kept = usable(readings)
     ids = np.array([r.reading.id for r in kept], dtype=int)
     xyv = np.array([(r.reading.x, r.reading.y, r.value_v_per_m) for r in kept], dtype=float)
     return ids, xyv.reshape(-1, 3)

@@ -228,6 +228,10 @@ def build_field(
         if kind == "rbf":
             params["smoothing"] = est.smoothing_
         candidates[kind] = (est, params)
+    if not candidates and fast and method == "auto":
+        # Early in a walk there are too few pairs for a variogram: the app still gets a map.
+        est = IDW().fit(xy, z)
+        candidates["idw"] = (est, {"power": 2.0, "neighbors": est.neighbors})
     if not candidates:
         raise MapperError("no method could be fitted: " + "; ".join(notes), where=_WHERE)
 
@@ -240,7 +244,10 @@ def build_field(
     by_kind = {c.method: c for c in table}
     if len(candidates) == 1:
         chosen = next(iter(candidates))
-        reason = "fast path: ordinary kriging without method comparison" if fast and method == "auto" else f"method {chosen} requested"
+        if fast and method == "auto":
+            reason = f"fast path: {'ordinary kriging' if chosen == 'kriging' else 'inverse-distance weighting'} without method comparison"
+        else:
+            reason = f"method {chosen} requested"
     else:
         best = min(table, key=lambda c: c.rmse_v_per_m)
         chosen = best.method

@@ -113,7 +113,7 @@ def fit_model(
     n_par = (2 if model == "linear" else 3) - (nugget is not None)
     if int(use.sum()) < n_par + 1:
         raise MapperError(
-            f"too few pairs to fit a {model} variogram: {int(use.sum())} lag bin(s) have at least "
+            f"too few pairs to fit the {model} variogram: {int(use.sum())} lag bin(s) have at least "
             f"{min_pairs} pairs, {n_par + 1} are needed (add readings or widen the lag bins)",
             where=_WHERE,
         )

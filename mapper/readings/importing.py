@@ -58,11 +58,32 @@ class ParsedFile:
 
 
 def parse_time(text: str, tz: tzinfo | None = None) -> datetime:
-    """Parse ISO 8601 time; text without an offset is taken in ``tz`` (default UTC)."""
+    """Parse an ISO 8601 time and return it in UTC.
+
+    The one time parser of the readings stage: CSV import, walked tracks and meter logs.
+
+    Parameters
+    ----------
+    text : str
+        E.g. ``2024-05-02T09:15:03Z``, ``2024-05-02 11:15:03+02:00``; surrounding blanks are
+        ignored.
+    tz : tzinfo, optional
+        Zone of times written without an offset (default UTC).
+
+    Raises
+    ------
+    MapperError
+        Empty text, or text that is not ISO 8601 (the message shows the text and an example).
+    """
+    stripped = text.strip()
+    if not stripped:
+        raise MapperError("empty time; expected ISO 8601 such as 2024-05-02T09:15:03Z")
     try:
-        moment = datetime.fromisoformat(text.strip().replace("Z", "+00:00"))
+        moment = datetime.fromisoformat(stripped.replace("Z", "+00:00"))
     except ValueError:
-        raise MapperError(f"{text!r} is not an ISO 8601 time (e.g. 2026-03-04T09:15:00Z)") from None
+        raise MapperError(
+            f"{stripped!r} is not an ISO 8601 time; expected e.g. 2024-05-02T09:15:03Z"
+        ) from None
     if moment.tzinfo is None:
         moment = moment.replace(tzinfo=tz or UTC)
     return moment.astimezone(UTC)

@@ -14,12 +14,13 @@ from __future__ import annotations
 
 import csv
 import math
-from collections.abc import Mapping, Sequence
+from collections.abc import Iterator, Mapping, Sequence
 from dataclasses import dataclass
 from datetime import UTC, date, datetime, timedelta, tzinfo
 from pathlib import Path
 
 from mapper.errors import MapperError
+from mapper.readings.importing import parse_time
 from mapper.units import parse_number
 
 #: File name endings read as NMEA 0183 sentences.
@@ -100,30 +101,6 @@ class PointVisit:
     line: int
 
 
-def parse_time(text: str, naive_tz: tzinfo = UTC) -> datetime:
-    """Parse an ISO 8601 time and return it in UTC.
-
-    Parameters
-    ----------
-    text : str
-        E.g. ``2024-05-02T09:15:03Z``, ``2024-05-02 11:15:03+02:00``.
-    naive_tz : tzinfo
-        Zone of times written without an offset.
-    """
-    stripped = text.strip()
-    if not stripped:
-        raise MapperError("empty time; expected ISO 8601 such as 2024-05-02T09:15:03Z")
-    try:
-        value = datetime.fromisoformat(stripped)
-    except ValueError:
-        raise MapperError(
-            f"{stripped!r} is not an ISO 8601 time; expected e.g. 2024-05-02T09:15:03Z"
-        ) from None
-    if value.tzinfo is None:
-        value = value.replace(tzinfo=naive_tz)
-    return value.astimezone(UTC)
-
-
 def _check_order(fixes: Sequence[TrackFix]) -> None:
     for prev, fix in zip(fixes, fixes[1:], strict=False):
         if fix.time < prev.time:
@@ -146,6 +123,18 @@ def _open_csv(path: Path) -> tuple[list[str], csv.reader, object]:
         handle.close()
         raise MapperError("file is empty; expected a header line", where=str(path)) from None
     return header, reader, handle
+
+
+def _data_rows(reader, header: Sequence[str], path: Path) -> Iterator[tuple[int, str, list[str]]]:
+    """The non-blank rows after the header as ``(line, where, cells)``; a wrong field count is refused."""
+    for row in reader:
+        line = reader.line_num
+        if not any(c.strip() for c in row):
+            continue
+        where = f"{path}:{line}"
+        if len(row) != len(header):
+            raise MapperError(f"{len(row)} fields, header has {len(header)}", where=where)
+        yield line, where, row
 
 
 def read_track_csv(path: str | Path, naive_tz: tzinfo = UTC) -> Track:
@@ -176,13 +165,7 @@ def read_track_csv(path: str | Path, naive_tz: tzinfo = UTC) -> Track:
         it, ix, iy = header.index("time"), header.index(cols[0]), header.index(cols[1])
         ip = header.index("point") if "point" in header else None
         fixes: list[TrackFix] = []
-        for row in reader:
-            line = reader.line_num
-            if not any(c.strip() for c in row):
-                continue
-            where = f"{path}:{line}"
-            if len(row) != len(header):
-                raise MapperError(f"{len(row)} fields, header has {len(header)}", where=where)
+        for _line, where, row in _data_rows(reader, header, path):
             column = "time"
             try:
                 t = parse_time(row[it], naive_tz)
@@ -370,13 +353,7 @@ def read_point_times(path: str | Path, naive_tz: tzinfo = UTC) -> tuple[PointVis
             )
         it, ip = header.index("time"), header.index("point")
         visits: list[PointVisit] = []
-        for row in reader:
-            line = reader.line_num
-            if not any(c.strip() for c in row):
-                continue
-            where = f"{path}:{line}"
-            if len(row) != len(header):
-                raise MapperError(f"{len(row)} fields, header has {len(header)}", where=where)
+        for line, where, row in _data_rows(reader, header, path):
             try:
                 t = parse_time(row[it], naive_tz)
             except MapperError as exc:

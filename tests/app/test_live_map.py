@@ -1,4 +1,4 @@
-"""Live map pieces: colours, pixel placement, the refit and its stand-ins."""
+"""Live map pieces: colours, pixel placement and the refit."""
 
 from __future__ import annotations
 
@@ -44,24 +44,6 @@ def test_frame_keeps_pixels_square_and_round_trips():
 def _readings(xy, values):
     t = datetime(2025, 1, 1, tzinfo=UTC)
     return [Reading(i + 1, x, y, v, v, "V/m", t) for i, ((x, y), v) in enumerate(zip(xy, values, strict=True))]
-
-
-def test_idw_stand_in_reproduces_a_constant_field():
-    # Exact property: inverse-distance weights sum to one, so a constant field is reproduced.
-    outline = shapely.box(0, 0, 10, 6)
-    xy = np.array([[1, 1], [9, 1], [5, 5], [2, 4]], float)
-    grid = live._idw_stand_in(xy, np.full(4, 250.0), outline)
-    assert np.nanmax(np.abs(grid.estimate - 250.0)) < 1e-9
-    assert np.isfinite(grid.estimate).all()  # the box fills its bounds
-
-
-def test_count_stand_in_counts_both_signs():
-    grid = live.LiveGrid(
-        np.arange(5.0), np.arange(3.0),
-        np.array([[0, 0, 0, 0, 0], [9, 0, 0, 0, -9], [0, 0, 0, 0, 0]], float), np.full((3, 5), np.nan), "test",
-    )
-    spots, count, _, _ = live._count_stand_in(grid, 5.0)
-    assert count == 2 and {s["polarity"] for s in spots} == {"positive", "negative"}
 
 
 def test_refit_needs_enough_positions_then_maps():

@@ -162,3 +162,50 @@ def test_compare_refuses_another_site_in_one_line(tmp_path, capsys):
     assert code == 2
     assert len(err.strip().splitlines()) == 1 and "different sites" in err
     assert not (tmp_path / "d.gpkg").exists()
+
+
+def test_hotspots_refuses_a_survey_with_too_few_readings_in_one_line(tmp_path, capsys):
+    site = tmp_path / "few.toml"
+    site.write_text(BOX_SITE, encoding="utf-8")
+    path = tmp_path / "few.survey"
+    with create_survey(path, site, spacing_m=2.0) as survey:
+        survey.add_readings([NewReading(1.0 + i, 2.0, 50.0, "V/m", 50.0) for i in range(3)])
+    code, out, err = _run(capsys, "hotspots", path)
+    assert code == 2 and out == ""
+    assert len(err.strip().splitlines()) == 1
+    assert str(path) in err and "5 or more distinct positions" in err and "has 3" in err
+
+
+def test_hotspots_and_export_map_the_same_hotspots(tmp_path, capsys):
+    # One pipeline behind both commands: the exported hotspot layer holds the very hotspots the
+    # hotspots command lists (same ids, peaks and areas), from the same stored analytic field.
+    path = _survey(tmp_path, "box", ["bin", "tray"])
+    code, out, err = _run(capsys, "hotspots", path, "--json")
+    assert code == 0, err
+    listed = {h["id"]: h for h in json.loads(out)["hotspots"]}
+    gpkg = tmp_path / "box.gpkg"
+    code, out, err = _run(capsys, "export", path, gpkg)
+    assert code == 0, err
+    assert "field model: stored in the survey" in out
+    layer = pyogrio.read_dataframe(gpkg, layer="hotspots")
+    exported = {row.hotspot_id: row for row in layer.itertuples() if row.hotspot_id in listed}
+    assert set(exported) == set(listed)
+    for hid, h in listed.items():
+        assert exported[hid].peak_v_per_m == pytest.approx(h["peak_v_per_m"], rel=1e-12)
+        assert exported[hid].area_m2 == pytest.approx(h["area_m2"], rel=1e-9)
+    # The peak of the positive charge is under it (closed form, Griffiths sec. 3.2.1).
+    neg = next(h for h in listed.values() if h["polarity"] == "negative")
+    assert np.hypot(neg["peak_x"] - 2.5, neg["peak_y"] - 3.0) <= 0.1
+
+
+def test_export_warns_like_hotspots_about_a_stale_or_missing_model(tmp_path, capsys):
+    stale = _survey(tmp_path, "stale", ["bin"])
+    with Survey.open(stale, write=True) as survey:
+        survey.add_reading(NewReading(9.5, 5.5, 10.0, "V/m", 10.0))
+    code, out, err = _run(capsys, "export", stale, tmp_path / "stale.gpkg")
+    assert code == 0, err
+    assert "older than the latest change" in err and "method kriging" in err
+    missing = _survey(tmp_path, "missing", ["bin"], store=False)
+    code, out, err = _run(capsys, "export", missing, tmp_path / "missing.gpkg")
+    assert code == 0, err
+    assert "no field model stored in the survey" in err

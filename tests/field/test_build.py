@@ -82,3 +82,11 @@ def test_collinear_survey_skips_plane_methods_in_auto():
         "exponential", sill=50.0, range=20.0))
     assert g.method in ("kriging", "idw")
     assert "collinear" in g.reason
+
+
+def test_fast_path_with_few_readings_falls_back_to_idw():
+    # Six readings give too few pairs for a variogram; the terminal app still needs a map.
+    xy = np.array([[1, 1], [9, 1], [1, 9], [9, 9], [5, 5], [3, 7]], float)
+    g = build_field(xy, np.arange(6.0), shapely.box(0, 0, 10, 10), fast=True)
+    assert g.method == "idw"
+    assert "kriging skipped" in g.reason and "too few pairs" in g.reason

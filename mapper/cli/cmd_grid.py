@@ -1,0 +1,114 @@
+"""``mapper grid``: build the field model from the corrected readings and store it in the survey."""
+
+from __future__ import annotations
+
+from mapper.cli.common import fmt, positive_float, say, table, warn
+from mapper.corrections.pipeline import correct_survey
+from mapper.errors import MapperError
+from mapper.field import METHODS, MODELS, Variogram, build_field, field_to_bytes
+from mapper.field.inputs import MIN_FIELD_POSITIONS, distinct_positions, field_inputs
+from mapper.survey.store import Survey
+
+
+def register(sub) -> None:
+    p = sub.add_parser(
+        "grid",
+        help="interpolate the corrected readings (kriging, RBF or IDW) and store the field model",
+        description="Interpolate the survey's corrected field readings onto a grid over the site, "
+        "with leave-one-out cross-validation, and store the field model in the survey. A variogram "
+        "given here is used as is, without fitting.",
+    )
+    p.add_argument("survey", help="survey file")
+    p.add_argument("--method", choices=METHODS, default="auto", help="interpolation method (default auto)")
+    p.add_argument("--cell", type=positive_float, metavar="METRES", help="grid cell size in metres")
+    p.add_argument("--neighbors", type=int, metavar="K", help="moving neighbourhood size (default: automatic)")
+    v = p.add_argument_group("variogram (kriging methods; used as is, not fitted)")
+    v.add_argument("--variogram", choices=MODELS, metavar="MODEL", help=f"model: {', '.join(MODELS)}")
+    v.add_argument("--sill", type=float, metavar="S", help="partial sill above the nugget, (V/m)²")
+    v.add_argument("--range", type=float, metavar="R", help="range in metres (practical range for exponential and gaussian)")
+    v.add_argument("--nugget", type=float, default=0.0, metavar="N", help="nugget, (V/m)² (default 0)")
+    v.add_argument("--angle", type=float, default=0.0, metavar="DEG", help="azimuth of the major axis, degrees counter-clockwise from +x")
+    v.add_argument("--ratio", type=float, default=1.0, metavar="R", help="anisotropy ratio major/minor range (>= 1)")
+    v.add_argument("--slope", type=float, metavar="S", help="slope of the linear model, (V/m)² per metre")
+    v.add_argument("--nu", type=float, default=1.5, metavar="NU", help="matern smoothness (default 1.5)")
+    p.set_defaults(func=run)
+
+
+def variogram_from_args(args) -> Variogram | None:
+    """The variogram the command line describes, or ``None`` when none is given."""
+    given = [name for name in ("sill", "range", "slope") if getattr(args, name) is not None]
+    if args.variogram is None:
+        if given:
+            raise MapperError(f"--{given[0]} needs --variogram MODEL ({', '.join(MODELS)})")
+        return None
+    if args.method in ("rbf", "idw"):
+        raise MapperError(f"--variogram applies to kriging methods, not --method {args.method}")
+    if args.variogram == "linear":
+        if args.slope is None:
+            raise MapperError("the linear variogram needs --slope S ((V/m)² per metre)")
+        return Variogram(model="linear", slope=args.slope, nugget=args.nugget)
+    missing = [f"--{name}" for name in ("sill", "range") if getattr(args, name) is None]
+    if missing:
+        raise MapperError(f"the {args.variogram} variogram needs {' and '.join(missing)}")
+    return Variogram(
+        model=args.variogram, sill=args.sill, range=args.range, nugget=args.nugget,
+        angle=args.angle, ratio=args.ratio, nu=args.nu,
+    )
+
+
+def run(args) -> int:
+    variogram = variogram_from_args(args)
+    method = args.method
+    if variogram is not None and method == "auto":
+        method = "kriging"
+    with Survey.open(args.survey, write=True) as survey:
+        corrected = correct_survey(survey)
+        for message in corrected.warnings:
+            warn(message)
+        xy, values = field_inputs(corrected.readings)
+        positions = distinct_positions(xy)
+        if positions < MIN_FIELD_POSITIONS:
+            raise MapperError(
+                f"a field model needs readings at {MIN_FIELD_POSITIONS} or more distinct positions; "
+                f"the survey has {positions}",
+                where=str(survey.path),
+            )
+        grid = build_field(
+            xy, values, survey.site.outline, method=method, cell_m=args.cell,
+            neighbors=args.neighbors, variogram=variogram,
+        )
+        summary = {
+            "method": grid.method,
+            "reason": grid.reason,
+            "cell_m": grid.cell_m,
+            "corrections": list(corrected.applied),
+            "readings": int(len(values)),
+        }
+        survey.save_field(grid.method, summary, field_to_bytes(grid))
+        unit = survey.display_unit
+    say(f"field model stored in {args.survey}: {grid.method}, {len(grid.x)} x {len(grid.y)} cells of {grid.cell_m:g} m")
+    say(f"from {len(values)} corrected readings at {positions} positions "
+        f"(corrections: {', '.join(corrected.applied) or 'none'})")
+    say(f"why: {grid.reason}")
+    text = grid.params.get("variogram_text")
+    if text:
+        fit = grid.params.get("variogram_fit")
+        origin = "given on the command line" if fit is None else (
+            f"fitted, R² {fit['r2']:.3f}, {fit['n_bins']} lag bins, "
+            + ("converged" if fit["converged"] else "did NOT converge")
+        )
+        say(f"variogram: {text} ({origin})")
+    if grid.cv_table:
+        rows = []
+        for c in grid.cv_table:
+            std = (
+                f"{c.mean_standardized:+.3f} / {c.rms_standardized:.3f}"
+                if c.mean_standardized is not None and c.rms_standardized is not None else "-"
+            )
+            mark = "*" if c.method == grid.method else ""
+            rows.append([c.method + mark, c.n, fmt(c.rmse_v_per_m, unit), fmt(c.mae_v_per_m, unit),
+                         fmt(c.mean_error_v_per_m, unit), std])
+        say("leave-one-out cross-validation (* = chosen):")
+        say(table(rows, ["method", "n", "RMSE", "MAE", "mean error", "std. error mean / RMS"]))
+        say("standardised errors near 0 (mean) and 1 (RMS) mean the standard deviation map is honest")
+    return 0
