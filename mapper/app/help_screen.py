@@ -49,8 +49,8 @@ class HelpScreen(ModalScreen[None]):
                 "Readings are saved to the survey file before the status line says 'saved'. "
                 "Undo and edits keep the old value in the file, marked as replaced. "
                 f"Relative humidity below {DRY_AIR_RH_PERCENT:g} % is flagged: charging rises "
-                "sharply in dry air. The live map uses raw readings; corrections apply in the "
-                "final map and report.",
+                "sharply in dry air. The live map uses the readings corrected for calibration, zero "
+                "and drift, as the exports do; the final map is 'mapper grid'.",
                 id="help-notes",
             )
             yield Static(CAUTION, id="help-caution")

@@ -66,7 +66,7 @@ class HotspotScreen(Screen[tuple[float, float] | None]):
 
     def compose(self) -> ComposeResult:
         yield Static(
-            f"Hotspots: |E| ≥ {self.threshold_label} in the live map (raw readings; {self.engine})",
+            f"Hotspots: |E| ≥ {self.threshold_label} in the live map (corrected readings; {self.engine})",
             id="hotspot-title",
         )
         yield DataTable(id="hotspot-table", cursor_type="row", zebra_stripes=True)

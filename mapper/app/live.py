@@ -1,8 +1,8 @@
 """The live map: refit the field after each reading and find hotspots and places to measure next.
 
 Runs in a worker thread, so everything here is a pure function of arrays and frozen records.
-The live map uses the RAW readings (``value_v_per_m`` as stored, physics sign); the corrected
-map comes from ``mapper map`` and the report. The field is the field engine's fast path
+The live map uses the readings corrected as the exports correct them (calibration, zero, drift);
+the outlier check is left to ``mapper review``. The field is the field engine's fast path
 (:func:`mapper.field.build_field` with ``fast=True``); hotspots and suggestions come from the
 map-features stage (:func:`mapper.features.find_hotspots`, :func:`mapper.features.advise_sampling`).
 """
@@ -10,15 +10,17 @@ map-features stage (:func:`mapper.features.find_hotspots`, :func:`mapper.feature
 from __future__ import annotations
 
 import time
-from collections.abc import Callable, Sequence
+from collections.abc import Callable, Mapping, Sequence
 from dataclasses import dataclass, field
 
 import numpy as np
 
+from mapper.corrections.meter import MeterProfile
+from mapper.corrections.pipeline import correct
 from mapper.errors import MapperError
 from mapper.features import advise_sampling, find_hotspots
 from mapper.field import FieldGrid, build_field
-from mapper.field.inputs import distinct_positions
+from mapper.field.inputs import distinct_positions, field_inputs, usable
 from mapper.plan.grid import PlanPoint
 from mapper.readings.model import CorrectedReading, Reading
 from mapper.site.model import Site
@@ -109,7 +111,7 @@ def fit_live_field(xy: np.ndarray, values: np.ndarray, outline) -> tuple[FieldGr
 def find_live_features(
     grid: FieldGrid,
     site: Site,
-    readings: Sequence[Reading],
+    readings: Sequence[CorrectedReading],
     threshold_v_per_m: float,
     planned: Sequence[PlanPoint],
     unit: str = "V/m",
@@ -128,9 +130,8 @@ def find_live_features(
     engine : str
         What found them.
     """
-    raw = [CorrectedReading(r, r.value_v_per_m) for r in readings if r.kind == "field"]
-    hotspots = find_hotspots(grid, site, threshold_v_per_m, raw)
-    advice = advise_sampling(grid, site, raw, threshold_v_per_m, count=suggestions, planned=planned)
+    hotspots = find_hotspots(grid, site, threshold_v_per_m, readings)
+    advice = advise_sampling(grid, site, readings, threshold_v_per_m, count=suggestions, planned=planned)
     sugg = tuple(Suggested(s.point, s.x, s.y, s.why) for s in advice)
     return hotspots, len(hotspots), sugg, "map features"
 
@@ -141,13 +142,17 @@ def refit(
     threshold_v_per_m: float,
     planned: Sequence[PlanPoint],
     cancelled: Callable[[], bool] = lambda: False,
+    meters: Mapping[str, MeterProfile] | None = None,
 ) -> LiveResult | None:
-    """One live refit: field, hotspots and suggestions from the current raw readings.
+    """One live refit: field, hotspots and suggestions from the current readings.
+
+    The readings are corrected as every other output corrects them (calibration, zero, drift;
+    the outlier check is left to ``mapper review``), so the live map and the exports agree.
 
     Parameters
     ----------
     readings : sequence of Reading
-        Current readings; only ``field`` ones are used, raw values.
+        Current readings of every kind (zero and reference readings feed the drift correction).
     site : Site
         Site, metres.
     threshold_v_per_m : float
@@ -156,11 +161,16 @@ def refit(
         Planned points that suggestions snap to.
     cancelled : callable
         Checked between stages; the refit gives up (returns ``None``) once it is true.
+    meters : mapping of str to MeterProfile, optional
+        The survey's meter profiles.
     """
     t0 = time.perf_counter()
-    field_rs = [r for r in readings if r.kind == "field"]
-    xy = np.array([(r.x, r.y) for r in field_rs], dtype=float).reshape(-1, 2)
-    values = np.array([r.value_v_per_m for r in field_rs], dtype=float)
+    try:
+        corrected = list(correct(readings, meters or {}, check_outliers=False).readings)
+    except MapperError:
+        corrected = [CorrectedReading(r, r.value_v_per_m) for r in readings if r.kind == "field"]
+    field_rs = usable(corrected)
+    xy, values = field_inputs(field_rs)
     grid, engine = fit_live_field(xy, values, site.outline)
     if cancelled():
         return None

@@ -25,6 +25,7 @@ from mapper.app.map_view import MapView
 from mapper.app.palette import FEATURE_COLOURS, diverging, hex_rgb, nice_ceiling
 from mapper.app.raster import LAYER_TITLES, LAYERS, Markers
 from mapper.app.session import DRY_AIR_RH_PERCENT, WalkSession, parse_conditions, parse_xy
+from mapper.corrections.pipeline import load_meters
 from mapper.errors import MapperError
 from mapper.survey.store import utc_now
 from mapper.units import FIELD_UNITS, format_field, from_si
@@ -336,7 +337,7 @@ class MainScreen(Screen):
     def start_refit(self) -> None:
         """Refit the live field in a worker; a newer refit cancels this one."""
         s = self.session
-        self._refit_worker(list(s.readings.values()), s.threshold_v_per_m)
+        self._refit_worker(list(s.readings.values()), s.threshold_v_per_m, load_meters(s.survey))
 
     def schedule_refit(self, delay_s: float = REFIT_DELAY_S) -> None:
         """Refit shortly, once the screen has shown the change; a newer call restarts the wait."""
@@ -345,10 +346,12 @@ class MainScreen(Screen):
         self._refit_timer = self.set_timer(delay_s, self.start_refit)
 
     @work(thread=True, exclusive=True, group="refit", description="live refit")
-    def _refit_worker(self, readings: list, threshold_v_per_m: float) -> None:
+    def _refit_worker(self, readings: list, threshold_v_per_m: float, meters: dict) -> None:
         worker = get_current_worker()
         s = self.session
-        result = refit(readings, s.site, threshold_v_per_m, s.points, cancelled=lambda: worker.is_cancelled)
+        result = refit(
+            readings, s.site, threshold_v_per_m, s.points, cancelled=lambda: worker.is_cancelled, meters=meters
+        )
         if result is not None and not worker.is_cancelled:
             self.app.call_from_thread(self._apply_live, result)
 
