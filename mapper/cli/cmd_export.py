@@ -4,7 +4,7 @@ from __future__ import annotations
 
 from pathlib import Path
 
-from mapper.cli.common import positive_float, say, threshold_arg, warn
+from mapper.cli.common import positive_float, print_notes, say, threshold_arg
 from mapper.errors import MapperError
 from mapper.export.bundle import export_products
 from mapper.export.pipeline import survey_products
@@ -47,11 +47,7 @@ def run(args) -> int:
         check_output(args.csv, ".csv")
     with Survey.open(args.survey) as survey:
         products = survey_products(survey, args.threshold, args.method, args.cell)
-    for note in products.notes:
-        if note.startswith("field model:"):
-            say(note)
-        elif note != products.no_field_reason:
-            warn(note)
+    print_notes(products)
     result = export_products(products, args.out, csv_path=args.csv)
     for line in result.lines(products):
         say(line)

@@ -5,7 +5,7 @@ from __future__ import annotations
 from pathlib import Path
 
 from mapper.cli.cmd_export import check_output
-from mapper.cli.common import positive_float, say, threshold_arg, warn
+from mapper.cli.common import positive_float, print_notes, say, threshold_arg
 from mapper.export.pipeline import survey_products
 from mapper.export.report import write_report
 from mapper.field.build import METHODS
@@ -33,11 +33,7 @@ def run(args) -> int:
         check_output(args.png, ".png")
     with Survey.open(args.survey) as survey:
         products = survey_products(survey, args.threshold, args.method, args.cell)
-    for note in products.notes:
-        if note.startswith("field model:"):
-            say(note)
-        elif note != products.no_field_reason:
-            warn(note)
+    print_notes(products)
     png = None if args.png is None else (Path(args.png) if args.png else Path(args.out).with_suffix(".png"))
     result = write_report(products, args.out, png_path=png)
     say(f"wrote {result.pdf} ({result.pages} pages)")

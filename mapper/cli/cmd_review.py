@@ -8,10 +8,8 @@ from mapper.cli.common import fmt, say, table
 from mapper.corrections.outliers import OUTLIER_FLAG
 from mapper.corrections.pipeline import correct_survey
 from mapper.errors import MapperError
-from mapper.field.inputs import EXCLUDING_FLAGS
+from mapper.readings.model import EXCLUDED_FLAG
 from mapper.survey.store import Survey
-
-EXCLUDED = next(iter(EXCLUDING_FLAGS))
 
 
 def register(sub) -> None:
@@ -37,12 +35,12 @@ def set_excluded(survey: Survey, reading_id: int, excluded: bool, reason: str = 
     if reading_id not in current:
         raise MapperError(f"reading {reading_id} is not a current reading (see 'mapper review')")
     reading = current[reading_id]
-    flags = [f for f in reading.flags if f != EXCLUDED]
+    flags = [f for f in reading.flags if f != EXCLUDED_FLAG]
     if excluded:
-        if EXCLUDED in reading.flags:
+        if EXCLUDED_FLAG in reading.flags:
             raise MapperError(f"reading {reading_id} is already excluded")
-        flags.append(EXCLUDED)
-    elif EXCLUDED not in reading.flags:
+        flags.append(EXCLUDED_FLAG)
+    elif EXCLUDED_FLAG not in reading.flags:
         raise MapperError(f"reading {reading_id} is not excluded")
     note = reading.note
     if reason:

@@ -74,3 +74,12 @@ def table(rows: Sequence[Sequence[object]], header: Sequence[str]) -> str:
 def fmt(value_v_per_m: float | None, unit: str) -> str:
     """A field value in the display unit, or a dash."""
     return "-" if value_v_per_m is None else format_field(value_v_per_m, unit)
+
+
+def print_notes(products) -> None:
+    """Print a pipeline run's notes: field-model remarks to stdout, warnings to stderr."""
+    for note in products.notes:
+        if note.startswith("field model:"):
+            say(note)
+        elif note != products.no_field_reason:
+            warn(note)

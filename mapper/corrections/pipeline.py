@@ -35,11 +35,7 @@ from mapper.corrections.zero_drift import (
     meter_overlaps,
     station_moves,
 )
-from mapper.readings.model import CorrectedReading, Reading
-
-#: Flag on a reading the user excluded; such readings are corrected but not used as controls,
-#: nor as neighbours in the outlier check.
-EXCLUDED_FLAG = "excluded"
+from mapper.readings.model import EXCLUDED_FLAG, CorrectedReading, Reading
 
 #: Names of corrections, in the order they are applied.
 CORRECTION_NAMES = ("calibration", "zero", "drift")

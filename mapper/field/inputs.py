@@ -10,10 +10,10 @@ from collections.abc import Sequence
 
 import numpy as np
 
-from mapper.readings.model import CorrectedReading
+from mapper.readings.model import EXCLUDED_FLAG, CorrectedReading
 
 #: Flags that keep a reading out of the field model (it stays in the survey and the exports).
-EXCLUDING_FLAGS = frozenset({"excluded"})
+EXCLUDING_FLAGS = frozenset({EXCLUDED_FLAG})
 #: Fewest distinct reading positions a field model is built from. Three points fix only a plane;
 #: five leave something to cross-validate (common practice, no source).
 MIN_FIELD_POSITIONS = 5

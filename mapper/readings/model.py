@@ -7,6 +7,9 @@ from datetime import datetime
 
 #: Kinds of reading. ``field`` readings are mapped; the others support corrections.
 READING_KINDS = ("field", "reference", "zero", "calibration")
+#: Flag on a reading the user excluded: kept in the survey and the exports, left out of the field
+#: model, the controls and the outlier check's neighbours.
+EXCLUDED_FLAG = "excluded"
 
 
 @dataclass(frozen=True)
