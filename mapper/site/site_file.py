@@ -299,7 +299,7 @@ def site_from_vector_file(path: Path, roles: Mapping[str, str], factor: float = 
         else:
             frames_crs = crs.to_string()
         minx, miny = outline.bounds[:2]
-        ox, oy = float(int(minx // 100) * 100), float(int(miny // 100) * 100)
+        ox, oy = float(np.floor(minx)), float(np.floor(miny))  # whole metres: site x, y start near 0
         outline = affinity.translate(outline, -ox, -oy)
         assets = [Asset(a.name, a.kind, affinity.translate(a.geometry, -ox, -oy), a.sensitive, a.walkable) for a in assets]
         zones = [Zone(z.name, affinity.translate(z.geometry, -ox, -oy), z.limit_v_per_m, z.kind) for z in zones]
