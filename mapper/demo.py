@@ -27,8 +27,10 @@ def run_demo(out: Path, samples: Path = SAMPLES) -> Iterator[str]:
         raise MapperError("sample site not found (run from a clone of the repository)", where=str(site))
     out.mkdir(parents=True, exist_ok=True)
     survey = out / "north_hall.survey"
-    for stale in (survey, Path(f"{survey}-wal"), Path(f"{survey}-shm")):
-        stale.unlink(missing_ok=True)
+    after = out / "north_hall_after.survey"
+    for path in (survey, after):
+        for stale in (path, Path(f"{path}-wal"), Path(f"{path}-shm")):
+            stale.unlink(missing_ok=True)
     steps = [
         ["new", str(survey), "--site", str(site), "--spacing", "2", "--unit", "kV/m", "--operator", "demo"],
         ["import", str(survey), str(samples / "north_hall_conditions.csv")],
@@ -38,10 +40,16 @@ def run_demo(out: Path, samples: Path = SAMPLES) -> Iterator[str]:
         ["hotspots", str(survey)],
         ["export", str(survey), str(out / "north_hall.gpkg"), "--csv", str(out / "north_hall_readings.csv")],
         ["report", str(survey), str(out / "north_hall.pdf"), "--png"],
+        # a week later, after an ioniser bar and a grounded brush were fitted to belt 1
+        ["new", str(after), "--site", str(site), "--spacing", "2", "--unit", "kV/m", "--operator", "demo"],
+        ["import", str(after), str(samples / "north_hall_after_conditions.csv")],
+        ["import", str(after), str(samples / "north_hall_after_readings.csv")],
+        ["grid", str(after)],
+        ["compare", str(survey), str(after), "--out", str(out / "north_hall_before_after.gpkg")],
     ]
     for argv in steps:
         yield f"$ mapper {' '.join(argv)}"
         status = main(argv)
         if status:
             raise MapperError(f"demo step 'mapper {argv[0]}' failed with status {status}")
-    yield f"wrote {survey}"
+    yield f"wrote {survey} and {after}"

@@ -110,18 +110,31 @@ def hall_control_points(rng: np.random.Generator) -> str:
     return "".join(lines)
 
 
-def make_hall(rng: np.random.Generator) -> None:
+#: The same hall after remedial work: an ioniser bar over belt 1 and a grounded brush on its
+#: return run leave a tenth of its charge; the wrap station and the totes are unchanged.
+HALL_SOURCES_AFTER = [
+    LineCharge(7.0, 9.0, 33.0, 9.0, h=2.4, density_c_per_m=-1.0e-7),
+    *HALL_SOURCES[1:],
+]
+
+
+def make_hall(
+    rng: np.random.Generator,
+    sources=HALL_SOURCES,
+    name: str = "north_hall",
+    start: datetime = datetime(2026, 11, 17, 7, 30, tzinfo=UTC),
+) -> None:
     toml_path = HERE / "north_hall.toml"
-    toml_path.write_text(HALL_TOML + hall_control_points(rng), encoding="utf-8")
+    if name == "north_hall":
+        toml_path.write_text(HALL_TOML + hall_control_points(rng), encoding="utf-8")
     site = load_site(toml_path)
     plan = plan_grid(site, 2.0)
-    start = datetime(2026, 11, 17, 7, 30, tzinfo=UTC)
     drift_v_per_m_per_h = 45.0  # slow zero drift of the meter (invented)
     noise = 25.0  # V/m, meter noise (invented)
     rows: list[dict] = []
 
     def truth(x, y):
-        return float(field_z(HALL_SOURCES, x, y, HALL_METER_HEIGHT_M))
+        return float(field_z(sources, x, y, HALL_METER_HEIGHT_M))
 
     def reading(t: datetime, x: float, y: float, kind: str, point: str = "", note: str = "") -> dict:
         hours = (t - start).total_seconds() / 3600
@@ -163,7 +176,7 @@ def make_hall(rng: np.random.Generator) -> None:
     rows.append(reading(t, ref_x, ref_y, "reference", note="reference station"))
     t += timedelta(seconds=30)
     rows.append(reading(t, ref_x, ref_y, "zero", note="grounded plate"))
-    _write_csv(HERE / "north_hall_readings.csv", rows)
+    _write_csv(HERE / f"{name}_readings.csv", rows)
     conditions = [
         {"time": (start - timedelta(minutes=2)).isoformat().replace("+00:00", "Z"), "rh_percent": 34,
          "temperature_c": 19.5, "note": "ionisers at packing table off"},
@@ -172,7 +185,7 @@ def make_hall(rng: np.random.Generator) -> None:
         {"time": t.isoformat().replace("+00:00", "Z"), "rh_percent": 29,
          "temperature_c": 21.0, "note": ""},
     ]
-    _write_csv(HERE / "north_hall_conditions.csv", conditions)
+    _write_csv(HERE / f"{name}_conditions.csv", conditions)
 
 
 # ---------------------------------------------------------------------------- east yard (outdoor)
@@ -260,4 +273,5 @@ if __name__ == "__main__":
     generator = np.random.default_rng(SEED)
     make_hall(generator)
     make_yard(generator)
+    make_hall(generator, HALL_SOURCES_AFTER, "north_hall_after", datetime(2026, 11, 24, 7, 30, tzinfo=UTC))
     print("wrote", ", ".join(sorted(p.name for p in HERE.iterdir() if p.suffix in (".toml", ".csv", ".geojson"))))
