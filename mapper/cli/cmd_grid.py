@@ -111,4 +111,7 @@ def run(args) -> int:
         say("leave-one-out cross-validation (* = chosen):")
         say(table(rows, ["method", "n", "RMSE", "MAE", "mean error", "std. error mean / RMS"]))
         say("standardised errors near 0 (mean) and 1 (RMS) mean the standard deviation map is honest")
+    source = grid.params.get("std_source")
+    if source:
+        say(f"standard deviation: {source}")
     return 0

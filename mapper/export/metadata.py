@@ -134,7 +134,7 @@ def metadata_rows(products: Products, exported_utc: str | None = None) -> list[M
         add("field", "source", p.field_source)
         add("field", "cell", _num(g.cell_m), "m")
         add("field", "grid_nodes", f"{len(g.x)} x {len(g.y)}")
-        for key in ("variogram_text", "neighbors", "kernel", "smoothing", "power", "drift",
+        for key in ("variogram_text", "std_source", "std_scale", "neighbors", "kernel", "smoothing", "power", "drift",
                     "n_readings", "n_positions", "repeatability_v_per_m", "data_spacing_m"):
             if g.params.get(key) is not None:
                 unit = "V/m" if key.endswith("v_per_m") else "m" if key.endswith("_m") else ""

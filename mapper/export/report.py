@@ -505,10 +505,16 @@ def draw_findings_page(fig: Figure, products: Products) -> None:
                          format_field(c.rmse_v_per_m, unit, 3), format_field(c.mae_v_per_m, unit, 3),
                          format_field(c.mean_error_v_per_m, unit, 3),
                          "-" if c.mean_standardized is None else f"{c.mean_standardized:.2f}",
-                         "-" if c.rms_standardized is None else f"{c.rms_standardized:.2f}"], stops)
+                         "-" if c.rms_standardized is None else
+                         f"{c.rms_standardized:.2f}" + (" †" if _calibrated(g, c) else "")], stops)
             col.para("Leave-one-out: each reading predicted from the others. z = error / predicted standard "
                      "deviation; mean z near 0 and RMS z near 1 mean the stated uncertainty is honest.", 6.8,
                      color="#444444")
+            if g.params.get("std_scale") is not None:
+                col.para(f"† {g.method} gives no standard deviation of its own: the map's is the ordinary "
+                         f"kriging standard deviation scaled by {g.params['std_scale']:.3g} so that its RMS z is "
+                         "1 by construction; mean z and the share of |z| <= 1.96 remain the checks.", 6.8,
+                         color="#444444")
 
     # Right: the standard deviation map.
     ax = fig.add_axes((0.60, 0.40, 0.36, 0.46))
@@ -591,3 +597,8 @@ def write_report(products: Products, pdf_path: str | Path, *, png_path: str | Pa
 
 
 __all__ = ["PAGE_SIZE_IN", "SECTIONS", "ReportResult", "draw_findings_page", "draw_map_page", "write_report"]
+
+
+def _calibrated(grid, stats) -> bool:
+    """True for the chosen method's row when its standard deviation is calibrated kriging's."""
+    return stats.method == grid.method and grid.params.get("std_scale") is not None

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import dataclasses
 import math
 
 import numpy as np
@@ -17,6 +18,7 @@ from mapper.field.kriging import OrdinaryKriging, UniversalKriging
 from mapper.field.model import CVStats, FieldGrid
 from mapper.field.rbf import RBF, _cv_subset
 from mapper.field.repeats import merge_repeats
+from mapper.field.uncertainty import calibrate_std
 from mapper.field.variogram import Variogram
 
 #: Methods accepted by :func:`build_field`.
@@ -33,6 +35,11 @@ DEFAULT_NEIGHBORS = 32
 #: gives a standard deviation (common practice, no source).
 KRIGING_PREFERENCE = 0.02
 _FIT_MODELS = ("exponential", "spherical", "gaussian")
+#: Positions left out in turn when the fitted variogram models are compared (fixed-seed subset).
+VARIOGRAM_CHOICE_POSITIONS = 500
+#: Methods that give no standard deviation of their own; theirs is calibrated kriging's
+#: (:mod:`mapper.field.uncertainty`).
+NO_STD_METHODS = ("rbf", "idw")
 _WHERE = "build_field"
 
 
@@ -99,20 +106,54 @@ def _plane_residuals(xy: np.ndarray, z: np.ndarray) -> np.ndarray:
     return z - a @ coef
 
 
-def _fit(xy: np.ndarray, z: np.ndarray, fast: bool) -> VariogramFit:
+def _fit(xy: np.ndarray, z: np.ndarray, values: np.ndarray, kind: str, fast: bool) -> tuple[VariogramFit, dict | None]:
+    """Fit the variogram models to ``z`` and keep the one whose kriging predicts best.
+
+    Each of :data:`_FIT_MODELS` is fitted to the empirical variogram of ``z`` (the readings, or
+    their residuals from a plane for universal kriging); the one kept gives the lowest
+    leave-one-out RMSE of ``kind`` kriging of ``values`` with the :data:`DEFAULT_NEIGHBORS`
+    nearest readings, on up to :data:`VARIOGRAM_CHOICE_POSITIONS` positions. Cross-validation is
+    the usual way to compare variogram models (Isaaks & Srivastava 1989, ch. 15 "Cross
+    validation"; Cressie 1993, sec. 2.6; chapter and section from memory); the goodness of fit to the binned semivariance cannot see the behaviour below
+    the first lag bin (the data spacing), which decides how kriging weights the nearest readings.
+    The fast path fits the exponential model only. Returns the fit and a record of the choice.
+    """
     if fast:
-        return fit_variogram(xy, z, "exponential", max_pairs=200_000)
+        return fit_variogram(xy, z, "exponential", max_pairs=200_000), None
     fits = [fit_variogram(xy, z, m) for m in _FIT_MODELS]
-    return max(fits, key=lambda f: f.r2)
+    n = xy.shape[0]
+    at = _cv_subset(n, VARIOGRAM_CHOICE_POSITIONS)
+    nb = DEFAULT_NEIGHBORS if n > DEFAULT_NEIGHBORS + 1 else None
+    cls = OrdinaryKriging if kind == "kriging" else UniversalKriging
+    rmse = {}
+    for f in fits:
+        try:
+            err, _ = cls(variogram=f.variogram, neighbors=nb).fit(xy, values).loo(at)
+            r = float(np.sqrt(np.mean(err**2)))
+        except (MapperError, np.linalg.LinAlgError):
+            r = math.inf
+        rmse[f.variogram.model] = r if math.isfinite(r) else math.inf
+    if all(math.isinf(r) for r in rmse.values()):
+        best, by = max(fits, key=lambda f: f.r2), "largest R² (no model could be cross-validated)"
+    else:
+        best = min(fits, key=lambda f: (rmse[f.variogram.model], -f.r2))
+        by = (f"lowest leave-one-out RMSE of {'ordinary' if kind == 'kriging' else 'universal'} kriging, "
+              f"{nb or 'all'} nearest readings, {at.shape[0]} positions")
+    choice = {
+        "by": by,
+        "loo_rmse_v_per_m": {m: (r if math.isfinite(r) else None) for m, r in rmse.items()},
+        "r2": {f.variogram.model: f.r2 for f in fits},
+    }
+    return best, choice
 
 
 def _kriging_setup(kind, merged, variogram, neighbors, n_targets, cell, spacing, fast):
     """Build an unfitted kriging estimator and the variogram description for it."""
     n = merged.xy.shape[0]
-    fit = None
+    fit = choice = None
     if variogram is None:
         z = merged.values if kind == "kriging" else _plane_residuals(merged.xy, merged.values)
-        fit = _fit(merged.xy, z, fast)
+        fit, choice = _fit(merged.xy, z, merged.values, kind, fast)
         variogram = fit.variogram
     if neighbors is None:
         small = n <= DEFAULT_NEIGHBORS or (not fast and n <= 3000 and n * n * max(n_targets, 1) <= 3e10)
@@ -124,6 +165,7 @@ def _kriging_setup(kind, merged, variogram, neighbors, n_targets, cell, spacing,
         "variogram": variogram.to_dict(),
         "variogram_text": variogram.describe(),
         "variogram_fit": None if fit is None else fit.to_dict(),
+        "variogram_choice": choice,
         "neighbors": neighbors,
         "share_m": share,
         "nugget_as_error": False,
@@ -131,6 +173,81 @@ def _kriging_setup(kind, merged, variogram, neighbors, n_targets, cell, spacing,
     if kind == "universal":
         params["drift"] = "linear"
     return est, params
+
+
+def _reference_kriging(candidates, kinds, xy, z, merged, variogram, neighbors, n_targets, cell, spacing, fast, at, loo):
+    """Ordinary kriging behind the calibrated standard deviation, and its leave-one-out std.
+
+    The ``auto`` candidate is reused (not fitted twice); otherwise one is fitted here, exactly as
+    ``method="kriging"`` would be. Returns (estimator, params, loo_std), or a note saying why not.
+    """
+    if merged.xy.shape[0] < 3:
+        return "fewer than 3 distinct positions leave nothing to cross-validate"
+    if "kriging" in candidates:
+        est, params = candidates["kriging"]
+        return est, params, loo["kriging"][1]
+    if "kriging" in kinds:  # tried and skipped; the reason already says why
+        return "ordinary kriging could not be fitted"
+    try:
+        est, params = _kriging_setup("kriging", merged, variogram, neighbors, n_targets, cell, spacing, fast)
+        est.fit(xy, z)
+        return est, params, est.loo(at)[1]
+    except MapperError as exc:
+        return f"ordinary kriging could not be fitted ({exc.message})"
+
+
+def _calibrated_std(chosen, ref, chosen_loo, chosen_cv, targets):
+    """Kriging std scaled to the chosen method's leave-one-out errors (see :mod:`.uncertainty`).
+
+    Returns the std at ``targets`` (NaN when no calibration is possible), the parameters to
+    record, the chosen method's CV statistics with standardised errors filled in (or None), and
+    a phrase for the reason text.
+    """
+    nan = np.full(targets.shape[0], np.nan)
+    if isinstance(ref, str):
+        note = ref
+    elif chosen_loo is None:
+        note = "fewer than 3 distinct positions leave nothing to cross-validate"
+    else:
+        kr, kparams, loo_std = ref
+        # Relative to the readings' spread, 1e-9 is far above the rounding noise of an exact
+        # reproduction (RBF on a plane: LOO errors ~1e-16 of the spread, measured) and far below
+        # any real meter's resolution (our own choice).
+        cal = calibrate_std(chosen_loo[0], loo_std, atol_v_per_m=1e-9 * float(np.ptp(kr.values_)))
+        note = cal.note
+        if cal.ok:
+            _, ks = kr.predict(targets)
+            source = (
+                f"ordinary kriging standard deviation scaled by s = {cal.scale:.3g} so that {chosen}'s "
+                f"leave-one-out standardized errors have RMS 1 (by construction, over {cal.n} positions; "
+                f"their mean is {cal.mean_standardized:+.3f} and {cal.within_95:.0%} lie within +-1.96, "
+                "about 0 and 95 % when the uncertainty is honest)"
+            )
+            extra = {
+                "std_source": source,
+                "std_scale": cal.scale,
+                "std_calibration": {
+                    "n": cal.n,
+                    "mean_standardized": cal.mean_standardized,
+                    "rms_standardized": cal.rms_standardized,
+                    "within_95": cal.within_95,
+                },
+                "std_reference": {
+                    "method": "kriging",
+                    **{k: kparams.get(k) for k in ("variogram", "variogram_text", "variogram_fit",
+                                                   "variogram_choice", "neighbors", "share_m")},
+                },
+            }
+            cv = None
+            if chosen_cv is not None:
+                cv = dataclasses.replace(chosen_cv, mean_standardized=cal.mean_standardized,
+                                         rms_standardized=cal.rms_standardized)
+            text = (f"standard deviation from calibrated kriging: ordinary kriging's scaled by "
+                    f"s = {cal.scale:.3g} so that {chosen}'s standardised leave-one-out errors have "
+                    "RMS 1 (by construction)")
+            return cal.scale * ks, extra, cv, text
+    extra = {"std_source": f"none: {note}", "std_scale": None}
+    return nan, extra, None, f"no standard deviation: {note}"
 
 
 def build_field(
@@ -171,6 +288,13 @@ def build_field(
     Returns
     -------
     FieldGrid
+        For ``rbf`` and ``idw``, which give no standard deviation of their own, ``std`` is
+        ordinary kriging's (the ``auto`` candidate, or one fitted here) scaled so that the
+        method's leave-one-out standardised errors have RMS 1 (:mod:`mapper.field.uncertainty`);
+        ``params["std_source"]`` says so and ``params["std_scale"]`` holds the factor, and the
+        chosen method's ``cv`` carries the standardised errors after scaling (RMS 1 by
+        construction; the mean stays informative). Where kriging cannot be fitted ``std`` stays
+        NaN and ``std_source`` and ``reason`` say why.
     """
     method = checks.choose(method, METHODS, "method", _WHERE)
     xy, z = checks.readings(xy, values, _WHERE, minimum=1)
@@ -236,11 +360,12 @@ def build_field(
         raise MapperError("no method could be fitted: " + "; ".join(notes), where=_WHERE)
 
     table: list[CVStats] = []
+    loo: dict[str, tuple[np.ndarray, np.ndarray | None]] = {}
+    at = _cv_subset(n, 300 if fast else 2000)
     if n >= 3:
-        at = _cv_subset(n, 300 if fast else 2000)
         for kind, (est, _) in candidates.items():
-            err, std = est.loo(at)
-            table.append(cv_stats(kind, err, std))
+            loo[kind] = est.loo(at)
+            table.append(cv_stats(kind, *loo[kind]))
     by_kind = {c.method: c for c in table}
     if len(candidates) == 1:
         chosen = next(iter(candidates))
@@ -270,11 +395,20 @@ def build_field(
 
     est, params = candidates[chosen]
     e, s = est.predict(targets)
+    params = dict(params)
+    if chosen in NO_STD_METHODS:
+        ref = _reference_kriging(candidates, kinds, xy, z, merged, variogram, neighbors, targets.shape[0],
+                                 cell, spacing, fast, at, loo)
+        s, extra, cv_chosen, text = _calibrated_std(chosen, ref, loo.get(chosen), by_kind.get(chosen), targets)
+        params.update(extra)
+        reason += "; " + text
+        if cv_chosen is not None:
+            by_kind[chosen] = cv_chosen
+            table = [cv_chosen if c.method == chosen else c for c in table]
     estimate = np.full(mx.shape, np.nan)
     std = np.full(mx.shape, np.nan)
     estimate[inside] = e
     std[inside] = s
-    params = dict(params)
     params.update(
         {
             "cell_m": cell,

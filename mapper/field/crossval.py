@@ -17,7 +17,10 @@ def cv_stats(method: str, error: np.ndarray, std: np.ndarray | None = None) -> C
     error : ndarray, shape (n,)
         Left-out estimate minus reading, V/m.
     std : ndarray, shape (n,), optional
-        Predicted standard deviation of each left-out estimate, V/m (kriging).
+        Predicted standard deviation of each left-out estimate, V/m (kriging). RBF and IDW give
+        none; :func:`mapper.field.build.build_field` fills their standardised errors from the
+        calibrated kriging standard deviation (:mod:`mapper.field.uncertainty`), whose RMS is 1
+        by construction.
 
     Returns
     -------

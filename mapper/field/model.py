@@ -20,8 +20,9 @@ class CVStats:
     rmse_v_per_m, mae_v_per_m, mean_error_v_per_m : float
         Root-mean-square, mean absolute and mean error of the left-out predictions, V/m.
     mean_standardized, rms_standardized : float or None
-        Mean and RMS of errors divided by the predicted standard deviation (kriging only);
-        about 0 and 1 when the uncertainty is honest.
+        Mean and RMS of errors divided by the predicted standard deviation; about 0 and 1 when
+        the uncertainty is honest. For RBF and IDW, whose standard deviation is calibrated
+        kriging's (``params["std_source"]``), the RMS is 1 by construction.
     """
 
     method: str

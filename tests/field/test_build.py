@@ -48,7 +48,8 @@ def test_each_method(scattered, method):
     g = build_field(xy, z, shapely.box(0, 0, 50, 30), method=method, cell_m=5.0)
     assert g.method == method
     assert np.isfinite(g.estimate).all()
-    assert np.isfinite(g.std).all() == (method == "universal")
+    # rbf and idw carry the calibrated kriging std (tests/field/test_uncertainty.py).
+    assert np.isfinite(g.std).all()
 
 
 def test_fast_path_grid_size():
