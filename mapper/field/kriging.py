@@ -21,12 +21,19 @@ from __future__ import annotations
 
 import numpy as np
 import scipy.linalg as sla
+from scipy.linalg import blas
 from scipy.spatial import cKDTree
 from scipy.spatial.distance import cdist
 
 from mapper.errors import MapperError
 from mapper.field import checks
-from mapper.field.linalg import inv_batched, solve_batched
+from mapper.field.linalg import (
+    chol_inverse_rows,
+    cholesky_upper,
+    inv_batched,
+    lower_solve_inplace,
+    solve_batched,
+)
 from mapper.field.repeats import MERGE_TOL_M, MergedReadings, merge_repeats
 from mapper.field.variogram import Variogram
 
@@ -138,17 +145,14 @@ class _Kriging:
         f = self._drift(xt, self.centre_, self.scale_)
         self.chol_ = None
         if vg.bounded:
-            c = _cov_inplace(vg, _pairwise(xt), with_nugget=True)
-            try:
-                low = sla.cholesky(c, lower=True, overwrite_a=True, check_finite=False)
-            except np.linalg.LinAlgError:
-                low = None
-            if low is not None:
-                u = sla.solve_triangular(low, f, lower=True, check_finite=False)
-                v = sla.solve_triangular(low, z, lower=True, check_finite=False)
+            # C = U'U; everything after this is triangular solves with U' (no bordered system).
+            up = cholesky_upper(_cov_inplace(vg, _pairwise(xt), with_nugget=True))
+            if up is not None:
+                u = lower_solve_inplace(up, np.asfortranarray(f))
+                v = lower_solve_inplace(up, z.copy())
                 g = u.T @ u
                 beta = np.linalg.solve(g, u.T @ v)
-                self.chol_ = low
+                self.chol_ = up
                 self.u_, self.g_, self.beta_ = u, g, beta
                 self.r_ = v - u @ beta
                 return
@@ -229,28 +233,58 @@ class _Kriging:
         return _gamma_inplace(vg, h)
 
     def _predict_global(self, tt: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-        vg, xt = self.variogram_, self.xt_
+        if self.chol_ is not None:
+            return self._predict_global_chol(tt)
+        xt = self.xt_
         n, m = xt.shape[0], tt.shape[0]
         est, var = np.empty(m), np.empty(m)
         chunk = max(64, _CHUNK_ELEMENTS // n)
         for s in range(0, m, chunk):
             sl = slice(s, min(m, s + chunk))
-            h = _cross(xt, tt[sl])
             f0 = self._drift(tt[sl], self.centre_, self.scale_).T  # (p, c)
-            if self.chol_ is not None:
-                c00 = vg.sill if self.nugget_as_error else vg.total_sill
-                c0 = _cov_inplace(vg, h, with_nugget=not self.nugget_as_error)
-                y = sla.solve_triangular(self.chol_, c0, lower=True, check_finite=False, overwrite_b=True)
-                est[sl] = f0.T @ self.beta_ + self.r_ @ y
-                resid = f0 - self.u_.T @ y
-                var[sl] = c00 - np.einsum("ij,ij->j", y, y) + np.einsum(
-                    "ij,ij->j", resid, np.linalg.solve(self.g_, resid)
-                )
-            else:
-                rhs = np.vstack([self._rhs_gamma(h), f0])
-                w = sla.lu_solve(self.lu_, rhs, check_finite=False)
-                est[sl] = self.values_ @ w[:n]
-                var[sl] = np.einsum("ij,ij->j", w, rhs) - self._g00()
+            rhs = np.vstack([self._rhs_gamma(_cross(xt, tt[sl])), f0])
+            w = sla.lu_solve(self.lu_, rhs, check_finite=False)
+            est[sl] = self.values_ @ w[:n]
+            var[sl] = np.einsum("ij,ij->j", w, rhs) - self._g00()
+        return est, var
+
+    def _predict_global_chol(self, tt: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        """Global solve from the Cholesky factor ``C = U'U`` of the data covariance.
+
+        For each target with covariances ``k`` to the data and drift ``f0``: ``y = U'^-1 k``
+        (one triangular solve per block of targets, in place), estimate ``f0' beta + r' y``
+        with ``r = U'^-1 (z - F beta)``, variance ``c(0) - y'y + d' G^-1 d`` with
+        ``d = f0 - F' C^-1 k`` and ``G = F' C^-1 F`` (the Lagrange / drift term).
+        """
+        vg, xt = self.variogram_, self.xt_
+        n, m = xt.shape[0], tt.shape[0]
+        est, var = np.empty(m), np.empty(m)
+        c00 = vg.sill if self.nugget_as_error else vg.total_sill
+        chunk = min(m, max(64, _CHUNK_ELEMENTS // n))
+        # One (targets, data) C-ordered buffer, reused: its transpose is the Fortran-ordered
+        # (data, targets) block the triangular solve overwrites, so nothing is copied and no
+        # fresh pages are touched per block.
+        buf = np.empty((chunk, n))
+        # Targets that coincide with a reading (the nugget belongs to lag 0 only).
+        dist0, near = cKDTree(xt).query(tt, k=1)
+        on_data = np.flatnonzero(dist0 == 0.0)
+        with_nugget = not self.nugget_as_error
+        ru = np.asfortranarray(np.column_stack([self.r_, self.u_]))  # (n, 1 + p)
+        for s in range(0, m, chunk):
+            e = min(m, s + chunk)
+            h = buf[: e - s]
+            cdist(tt[s:e], xt, out=h)
+            hit = on_data[(on_data >= s) & (on_data < e)]
+            kt = _cov_inplace(vg, h, with_nugget=with_nugget, zero=(hit - s, near[hit]))
+            y = lower_solve_inplace(self.chol_, kt.T)  # (n, c) Fortran: columns U'^-1 k
+            # r'y and F'C^-1 k for the block in one product (scipy's BLAS, like the solve).
+            proj = blas.dgemm(1.0, y, ru, trans_a=1)  # (c, 1 + p)
+            f0 = self._drift(tt[s:e], self.centre_, self.scale_)  # (c, p)
+            est[s:e] = f0 @ self.beta_ + proj[:, 0]
+            d = f0 - proj[:, 1:]
+            var[s:e] = c00 - np.einsum("ij,ij->i", y.T, y.T) + np.einsum(
+                "ij,ji->i", d, np.linalg.solve(self.g_, d.T)
+            )
         return est, var
 
     def _local_matrices(self, idx: np.ndarray, centre: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
@@ -376,22 +410,30 @@ def _gamma_inplace(vg: Variogram, h: np.ndarray) -> np.ndarray:
     return h
 
 
-def _cov_inplace(vg: Variogram, h: np.ndarray, *, with_nugget: bool) -> np.ndarray:
-    """Covariance at lags ``h`` computed in the memory of ``h`` (overwritten); nugget at h = 0."""
-    zero = h <= 0 if (with_nugget and vg.nugget) else None
-    if vg.model == "exponential":
-        h *= -3.0 / vg.range
+def _cov_inplace(
+    vg: Variogram, h: np.ndarray, *, with_nugget: bool, zero: tuple[np.ndarray, np.ndarray] | None = None
+) -> np.ndarray:
+    """Covariance at lags ``h`` computed in the memory of ``h`` (overwritten); nugget at h = 0.
+
+    ``zero`` optionally lists the (row, column) indices where ``h`` is 0 (found beforehand),
+    which saves a pass over ``h`` looking for them.
+    """
+    nugget = with_nugget and vg.nugget > 0
+    if nugget and zero is None:
+        zero = np.nonzero(h <= 0)
+    if vg.model in ("exponential", "gaussian") and vg.sill > 0:
+        # sill * exp(x) as exp(x + ln sill): one pass fewer over the block.
+        if vg.model == "gaussian":
+            h *= h
+            h *= -3.0 / (vg.range * vg.range)
+        else:
+            h *= -3.0 / vg.range
+        h += np.log(vg.sill)
         np.exp(h, out=h)
-        h *= vg.sill
-    elif vg.model == "gaussian":
-        h *= h
-        h *= -3.0 / (vg.range * vg.range)
-        np.exp(h, out=h)
-        h *= vg.sill
     else:
         h = vg.sill * vg.correlation(h)
-    if zero is not None:
-        np.add(h, vg.nugget, out=h, where=zero)
+    if nugget:
+        h[zero] += vg.nugget
     return h
 
 
@@ -433,24 +475,22 @@ def _loo_global(kr: _Kriging) -> tuple[np.ndarray, np.ndarray]:
     n = xt.shape[0]
     f = kr._drift(xt, kr.centre_, kr.scale_)
     if vg.bounded:
-        c = _cov_inplace(vg, _pairwise(xt), with_nugget=True)
-        try:
-            low = sla.cholesky(c, lower=True, overwrite_a=True, check_finite=False)
-        except np.linalg.LinAlgError:
-            low = None
-        if low is not None:
+        up = getattr(kr, "chol_", None)  # the factor of the fit, when it was a global solve
+        if up is None:
+            up = cholesky_upper(_cov_inplace(vg, _pairwise(xt), with_nugget=True))
+        v = None if up is None else chol_inverse_rows(up)
+        if v is not None:
             # B = C^-1 - C^-1 F (F' C^-1 F)^-1 F' C^-1; error_i = (B z)_i / B_ii, var_i = 1 / B_ii.
-            # With W = L^-1 (in place): C^-1 = W'W, so diag(C^-1) is the column sums of W^2.
-            w, info = sla.lapack.dtrtri(low, lower=1, overwrite_c=1)
-            if info == 0:  # the strict upper triangle of w stays zero, as cholesky left it
-                cinv_diag = np.einsum("ij,ij->j", w, w)
-                cf = w.T @ (w @ f)
-                cz = w.T @ (w @ z)
-                g = f.T @ cf
-                gi_cf = np.linalg.solve(g, cf.T)
-                diag = cinv_diag - np.einsum("ij,ji->i", cf, gi_cf)
-                bz = cz - cf @ (gi_cf @ z)
-                return -bz / diag, np.sqrt(np.maximum(1.0 / diag, 0.0))
+            # With V = U^-1 (C = U'U): C^-1 = V V', so diag(C^-1) is the row sums of V^2.
+            cinv_diag = np.einsum("ij,ij->i", v, v)
+            cf = v @ (v.T @ f)
+            cz = v @ (v.T @ z)
+            del v
+            g = f.T @ cf
+            gi_cf = np.linalg.solve(g, cf.T)
+            diag = cinv_diag - np.einsum("ij,ji->i", cf, gi_cf)
+            bz = cz - cf @ (gi_cf @ z)
+            return -bz / diag, np.sqrt(np.maximum(1.0 / diag, 0.0))
     h = _pairwise(xt)
     p = f.shape[1]
     a = np.zeros((n + p, n + p))
