@@ -27,6 +27,7 @@ from mapper.app.raster import LAYER_TITLES, LAYERS, Markers
 from mapper.app.session import DRY_AIR_RH_PERCENT, WalkSession, parse_conditions, parse_xy
 from mapper.corrections.pipeline import load_meters
 from mapper.errors import MapperError
+from mapper.readings.serial_meter import MeterLine, SerialMeterReader
 from mapper.survey.store import utc_now
 from mapper.units import FIELD_UNITS, format_field, from_si
 
@@ -61,10 +62,14 @@ class MainScreen(Screen):
     CSS_PATH = "main_screen.tcss"
     BINDINGS = bindings()
 
-    def __init__(self, session: WalkSession, ask_conditions: bool = True) -> None:
+    def __init__(
+        self, session: WalkSession, ask_conditions: bool = True, meter: SerialMeterReader | None = None
+    ) -> None:
         super().__init__()
         self.session = session
         self.ask_conditions = ask_conditions
+        #: A meter that sends one reading per line; its values land in the entry line.
+        self.meter = meter
         #: Kind of the next typed value: ``field``, ``reference`` or ``zero``.
         self.armed = "field"
         self.map_layer = "estimate"
@@ -105,6 +110,8 @@ class MainScreen(Screen):
         self.set_interval(TICK_S, self._tick)
         if self.ask_conditions and self.session.conditions_due():
             self.call_after_refresh(self.action_conditions)
+        if self.meter is not None:
+            self._meter_worker(self.meter)
 
     def on_resize(self, event) -> None:
         self.set_class(event.size.width < NARROW_COLUMNS, "-narrow")
@@ -359,6 +366,34 @@ class MainScreen(Screen):
         self.live = result
         self._hotspot_line()
         self._draw_map()
+
+    # ------------------------------------------------------------- live meter
+    @work(thread=True, exclusive=True, group="meter", description="serial meter")
+    def _meter_worker(self, meter: SerialMeterReader) -> None:
+        """Read the meter's lines until the screen goes; each one is offered in the entry line."""
+        worker = get_current_worker()
+        try:
+            meter.open()
+        except MapperError as exc:
+            self.app.call_from_thread(self.set_status, f"meter: {exc}", True)
+            return
+        try:
+            while not worker.is_cancelled:
+                line = meter.read_line()
+                if line is not None:
+                    self.app.call_from_thread(self.offer_meter_line, line)
+        finally:
+            meter.close()
+
+    def offer_meter_line(self, line: MeterLine) -> None:
+        """Put a value the meter sent into the entry line; Enter records it where the surveyor is."""
+        if not line.ok:
+            self.set_status(f"meter line ignored: {line.error}", error=True)
+            return
+        entry = self.query_one("#entry", EntryLine)
+        entry.value = f"{line.value:g}{line.unit}"
+        entry.cursor_position = len(entry.value)
+        self.set_status(f"meter sent {line.value:g} {line.unit}: Enter records it at {self.session.where}")
 
     # ------------------------------------------------------------- recording
     @on(Input.Submitted, "#entry")

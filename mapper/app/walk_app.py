@@ -8,6 +8,7 @@ from textual.app import App
 
 from mapper.app.main_screen import MainScreen
 from mapper.app.session import CONDITIONS_EVERY, WalkSession
+from mapper.readings.serial_meter import SerialMeterReader
 from mapper.survey.store import Survey
 
 
@@ -22,6 +23,8 @@ class WalkApp(App[None]):
         Ask for RH and temperature when none is younger than this.
     ask_conditions : bool
         Whether to ask at all (tests and benchmarks switch it off).
+    meter : SerialMeterReader, optional
+        A meter sending one reading per line; each value is offered in the entry line.
     """
 
     TITLE = "mapper walk"
@@ -32,14 +35,16 @@ class WalkApp(App[None]):
         survey: Survey,
         conditions_every: timedelta = CONDITIONS_EVERY,
         ask_conditions: bool = True,
+        meter: SerialMeterReader | None = None,
     ) -> None:
         super().__init__()
         self.survey = survey
         self.session = WalkSession(survey, conditions_every)
         self.ask_conditions = ask_conditions
+        self.meter = meter
 
     def on_mount(self) -> None:
-        self.push_screen(MainScreen(self.session, self.ask_conditions))
+        self.push_screen(MainScreen(self.session, self.ask_conditions, self.meter))
 
     async def action_quit(self) -> None:
         self.session.remember_position()

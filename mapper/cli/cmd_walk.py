@@ -34,6 +34,12 @@ def register(sub) -> None:
         help="ask for RH and temperature when none was recorded for MIN minutes (default 30)",
     )
     p.add_argument("--no-conditions", action="store_true", help="never ask for conditions (F5 still records them)")
+    p.add_argument(
+        "--meter-port", metavar="PORT",
+        help="serial port of a meter that sends one reading per line (e.g. /dev/ttyUSB0); "
+        "each value appears in the entry line, Enter records it",
+    )
+    p.add_argument("--meter-baud", type=int, default=9600, metavar="BAUD", help="meter line speed (default 9600)")
     p.set_defaults(func=run)
 
 
@@ -73,10 +79,16 @@ def run(args) -> int:
             raise MapperError(NO_TERMINAL)
         from mapper.app.walk_app import WalkApp
 
+        meter = None
+        if args.meter_port:
+            from mapper.readings.serial_meter import SerialMeterReader
+
+            meter = SerialMeterReader(args.meter_port, args.meter_baud, default_unit=survey.display_unit)
         app = WalkApp(
             survey,
             conditions_every=timedelta(minutes=args.conditions_every),
             ask_conditions=not args.no_conditions,
+            meter=meter,
         )
         app.run()
     finally:
