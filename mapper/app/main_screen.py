@@ -227,7 +227,7 @@ class MainScreen(Screen):
             parts.append(f"RH {last.rh_percent:g} %")
         if last.temperature_c is not None:
             parts.append(f"{last.temperature_c:g} °C")
-        text = f"{' · '.join(parts)} · {int(age // 60)} min ago"
+        text = f"{' · '.join(parts)} · {_age_text(age)}"
         if s.dry_air():
             text += f"\nDRY AIR (RH < {DRY_AIR_RH_PERCENT:g} %): high charging"
         if s.conditions_due():
@@ -726,3 +726,13 @@ class MainScreen(Screen):
             done,
         )
 
+
+
+def _age_text(seconds: float) -> str:
+    """How long ago, in the largest sensible unit: ``12 min ago``, ``5 h ago``, ``14 days ago``."""
+    minutes = int(seconds // 60)
+    if minutes < 120:
+        return f"{minutes} min ago"
+    if minutes < 48 * 60:
+        return f"{minutes // 60} h ago"
+    return f"{minutes // (24 * 60)} days ago"
