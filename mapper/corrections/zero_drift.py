@@ -38,7 +38,7 @@ DRIFT_EXTRAPOLATED = "drift-extrapolated"
 STATION_TOLERANCE_M = 0.5
 
 #: Name used for reference readings without a ``point`` label.
-UNNAMED_STATION = "(unlabelled)"
+UNNAMED_STATION = "unlabelled"
 
 #: Interval between control readings suggested in warnings (common practice, no source).
 SUGGESTED_INTERVAL = "every 20-30 min"
@@ -167,7 +167,7 @@ class DriftReport:
         )
         return (
             f"meter {self.meter_id}: {self.n_zero} zero and {self.n_reference} reference readings"
-            f" ({', '.join(self.stations) or 'no stations'}), {rate}, largest correction "
+            f" (stations: {', '.join(self.stations) or 'none'}), {rate}, largest correction "
             f"{self.largest_correction_v_per_m:+.4g} V/m, {self.extrapolated} of "
             f"{self.field_readings} field readings outside the control span"
         )
