@@ -340,13 +340,15 @@ class WalkSession:
     def undo(self) -> Reading:
         """Supersede the most recent current reading (kept in the file as undone).
 
-        Returns the reading that no longer counts; the surveyor is taken back to its point.
+        Undoing an edit brings back the value from before the edit. Returns the reading that no
+        longer counts; the surveyor is taken back to its point.
         """
         last = self.survey.last_live_reading()
         if last is None:
             raise MapperError("nothing to undo: no current reading in this survey")
-        self.survey.supersede(last.id, "undo")
-        self._replace(self.readings.get(last.id, last), None)
+        new_id = self.survey.supersede(last.id, "undo")
+        restored = self.survey.reading(new_id) if self.survey.is_current(new_id) else None
+        self._replace(self.readings.get(last.id, last), restored)
         if last.point in self.by_label and last.kind == "field":
             self.go(self.by_label[last.point])
             self.remember_position()

@@ -358,7 +358,8 @@ class Survey:
             A current reading (or, for ``restore``, an ``undo``/``exclude`` row's target).
         action : str
             ``edit`` (copy with ``changes``), ``undo`` or ``exclude`` (the reading stops counting),
-            ``restore`` (bring back a reading that was undone or excluded; pass its id).
+            ``restore`` (bring back a reading that was undone or excluded; pass its id). Undoing
+            an edit brings back the values from before the edit (a ``restore`` row).
         changes : dict, optional
             Column values for ``edit`` (e.g. ``entered_value``, ``value_v_per_m``, ``note``, ``flags``).
 
@@ -385,6 +386,10 @@ class Survey:
                 raise MapperError(f"reading {reading_id} is not current (already edited, undone or excluded)")
             target_id = reading_id
         values = dict(row)
+        if action == "undo" and row["action"] == "edit":
+            # undoing an edit goes back, as a new row, to the reading the edit replaced
+            previous = self.conn.execute("SELECT * FROM readings WHERE id = ?", (row["replaces"],)).fetchone()
+            action, values = "restore", dict(previous)
         values.update(changes or {})
         if "flags" in values and not isinstance(values["flags"], str):
             values["flags"] = ",".join(values["flags"])
@@ -402,6 +407,11 @@ class Survey:
             )
             _log(self.conn, action, {"reading": reading_id, "new": cur.lastrowid})
         return int(cur.lastrowid)
+
+    def is_current(self, reading_id: int) -> bool:
+        """True when a row is a reading that counts (not edited, undone or excluded since)."""
+        row = self.conn.execute("SELECT action FROM readings WHERE id = ?", (reading_id,)).fetchone()
+        return row is not None and row["action"] in LIVE_ACTIONS and not self._is_replaced(reading_id)
 
     def _is_replaced(self, reading_id: int) -> bool:
         return self.conn.execute("SELECT 1 FROM readings WHERE replaces = ?", (reading_id,)).fetchone() is not None

@@ -145,3 +145,11 @@ def test_settings_saved_in_survey(walk: WalkSession):
         walk.set_threshold("-1")
     with pytest.raises(MapperError):
         walk.set_display_unit("V/ft")
+
+
+def test_undo_after_edit_brings_back_the_earlier_value(walk):
+    first = walk.record("120")
+    walk.edit(first.id, "150")
+    walk.undo()
+    assert sorted(r.value_v_per_m for r in walk.readings.values()) == [120.0]
+    assert [r.value_v_per_m for r in walk.survey.readings()] == [120.0]

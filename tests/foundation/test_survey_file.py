@@ -41,6 +41,17 @@ def test_readings_are_append_only(box_survey):
         assert s.reading(edited).value_v_per_m == 110.0
 
 
+def test_undoing_an_edit_brings_back_the_value_before_it(box_survey):
+    with Survey.open(box_survey, write=True) as s:
+        a = s.add_reading(new_reading(100.0, point="A1"))
+        edited = s.supersede(a.id, "edit", {"entered_value": 150.0, "value_v_per_m": 150.0})
+        back = s.supersede(edited, "undo")
+        assert [(r.id, r.value_v_per_m) for r in s.readings()] == [(back, 100.0)]
+        s.supersede(back, "undo")  # undoing the original reading itself removes it
+        assert s.readings() == []
+        assert s.count_rows() == 4
+
+
 def test_one_writer_at_a_time_readers_welcome(box_survey):
     with Survey.open(box_survey, write=True):
         code = (
