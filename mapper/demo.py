@@ -25,6 +25,8 @@ def run_demo(out: Path, samples: Path = SAMPLES) -> Iterator[str]:
     site = samples / "north_hall.toml"
     if not site.exists():
         raise MapperError("sample site not found (run from a clone of the repository)", where=str(site))
+    if out.exists() and not out.is_dir():
+        raise MapperError("is a file; --out takes a folder to write the demo into", where=str(out))
     out.mkdir(parents=True, exist_ok=True)
     survey = out / "north_hall.survey"
     after = out / "north_hall_after.survey"

@@ -44,6 +44,8 @@ def run(args) -> int:
     out = Path(args.out)
     if out.suffix.lower() != ".gpkg":
         raise MapperError(f"output {out} must end in .gpkg (a GeoPackage)", where="--out")
+    if not out.parent.is_dir():
+        raise MapperError(f"folder {out.parent} of the output does not exist", where="--out")
     before = survey_file_products(args.before, args.threshold).require_field()
     after = survey_file_products(args.after, args.threshold).require_field()
     threshold = before.threshold_v_per_m

@@ -2,7 +2,7 @@
 
 from __future__ import annotations
 
-from mapper.cli.common import fmt, positive_float, say, table, warn
+from mapper.cli.common import fmt, neighbors_arg, positive_float, say, table, warn
 from mapper.corrections.pipeline import correct_survey
 from mapper.errors import MapperError
 from mapper.field import METHODS, MODELS, Variogram, build_field, field_to_bytes
@@ -21,7 +21,7 @@ def register(sub) -> None:
     p.add_argument("survey", help="survey file")
     p.add_argument("--method", choices=METHODS, default="auto", help="interpolation method (default auto)")
     p.add_argument("--cell", type=positive_float, metavar="METRES", help="grid cell size in metres")
-    p.add_argument("--neighbors", type=int, metavar="K", help="moving neighbourhood size (default: automatic)")
+    p.add_argument("--neighbors", type=neighbors_arg, metavar="K", help="moving neighbourhood size (default: automatic)")
     v = p.add_argument_group("variogram (kriging methods; used as is, not fitted)")
     v.add_argument("--variogram", choices=MODELS, metavar="MODEL", help=f"model: {', '.join(MODELS)}")
     v.add_argument("--sill", type=float, metavar="S", help="partial sill above the nugget, (V/m)²")

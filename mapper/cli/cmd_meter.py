@@ -131,6 +131,11 @@ def run_add(args) -> int:
     }
     with Survey.open(args.survey, write=True) as survey:
         existing = _profiles(survey).get(args.meter)
+        if existing and not changes:
+            raise MapperError(
+                f"meter {args.meter!r} already exists and no field to change was given "
+                "(e.g. --gain, --due); nothing stored"
+            )
         base = existing.to_dict() if existing else {"id": args.meter}
         for key, value in changes.items():
             base[key] = value.isoformat() if isinstance(value, date) else value

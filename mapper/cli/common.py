@@ -44,12 +44,25 @@ def positive_float(text: str) -> float:
     return value
 
 
+def neighbors_arg(text: str) -> int:
+    """argparse type: a neighbourhood size, a whole number of at least 3 readings."""
+    try:
+        value = int(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"{text!r} is not a whole number") from None
+    if value < 3:
+        raise argparse.ArgumentTypeError(f"{text!r} is too small; a neighbourhood needs at least 3 readings")
+    return value
+
+
 def role_arg(text: str) -> tuple[str, str]:
     """argparse type: ``LAYER=ROLE``."""
     if "=" not in text:
         raise argparse.ArgumentTypeError(f"{text!r} should be LAYER=ROLE, e.g. boundary=outline")
-    layer, role = text.split("=", 1)
-    return layer.strip(), role.strip()
+    layer, role = (part.strip() for part in text.split("=", 1))
+    if not layer or not role:
+        raise argparse.ArgumentTypeError(f"{text!r} should be LAYER=ROLE with both parts, e.g. boundary=outline")
+    return layer, role
 
 
 def say(*parts: object) -> None:

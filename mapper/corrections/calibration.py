@@ -21,6 +21,7 @@ from pathlib import Path
 import numpy as np
 
 from mapper.errors import MapperError
+from mapper.textfile import open_utf8
 from mapper.units import (
     LENGTH_UNITS,
     check_field,
@@ -300,10 +301,7 @@ def read_calibration_csv(
     """
     path = Path(path)
     name = str(path)
-    try:
-        handle = path.open(newline="", encoding="utf-8-sig")
-    except OSError as exc:
-        raise MapperError(f"cannot read calibration file: {exc.strerror}", where=name) from None
+    handle = open_utf8(path, "calibration file")
     with handle:
         reader = csv.reader(handle)
         try:

@@ -17,6 +17,7 @@ import rasterio
 from rasterio.transform import Affine
 from scipy.interpolate import RegularGridInterpolator
 
+from mapper.errors import MapperError
 from mapper.export.crs import ExportCRS, export_crs, transform_all
 from mapper.features import Comparison, bands, nice_levels
 from mapper.site.model import Site
@@ -89,6 +90,10 @@ def write_comparison_gpkg(path: str | Path, cmp: Comparison, site: Site, unit: s
         Display unit for band labels.
     """
     path = Path(path)
+    if path.suffix.lower() != ".gpkg":
+        raise MapperError(f"output {path.name!r} should end in .gpkg", where=str(path))
+    if not path.parent.is_dir():
+        raise MapperError("folder does not exist", where=str(path.parent))
     ecrs = export_crs(site)
     tmp = path.with_name(f".{path.stem}.partial.gpkg")
     if tmp.exists():

@@ -226,6 +226,8 @@ def _field_model(
     try:
         grid = build_field(xy, values, outline, method=build_method, cell_m=cell_m)
     except MapperError as exc:
+        if cell_m is not None:  # the user's own --cell: say so instead of exporting without a map
+            raise
         return _FieldModel(remarks=tuple(remarks), reason=f"no field model could be built: {exc.message}")
     remarks.append(f"{FIELD_NOTE_PREFIX} built now ({grid.reason})")
     if consult_store and stored is None:

@@ -325,6 +325,12 @@ def build_field(
     mx, my = np.meshgrid(gx, gy)
     inside = shapely.contains_xy(outline, mx, my)
     targets = np.column_stack([mx[inside], my[inside]])
+    if targets.shape[0] == 0:
+        raise MapperError(
+            f"cell {cell:g} m leaves no grid node inside the site outline "
+            f"({bounds[2] - bounds[0]:.3g} m x {bounds[3] - bounds[1]:.3g} m); use a smaller cell",
+            where=_WHERE,
+        )
     spacing = data_spacing(merged.xy)
 
     if method == "auto":

@@ -16,6 +16,7 @@ from mapper.errors import MapperError
 from mapper.readings.model import READING_KINDS
 from mapper.site.model import Site
 from mapper.survey.store import NewReading
+from mapper.textfile import open_utf8, read_utf8
 from mapper.units import check_field, parse_field, parse_number, to_physics_sign
 
 #: Readings this far outside the outline are still accepted (meter held over a wall line), metres.
@@ -139,19 +140,18 @@ def parse_readings_csv(
     path = Path(path)
     if not path.exists():
         raise MapperError("file not found", where=str(path))
-    try:
-        text = path.read_text(encoding="utf-8-sig")
-    except UnicodeDecodeError as exc:
-        raise MapperError(f"not UTF-8 text ({exc.reason} at byte {exc.start})", where=str(path)) from None
-    reader = csv.DictReader(text.splitlines())
+    text = read_utf8(path, "readings file")
+    # a short row reads as empty cells, so the missing column is named
+    reader = csv.DictReader(text.splitlines(), restval="")
     fields = [f.strip() for f in (reader.fieldnames or [])]
     if not fields:
         raise MapperError("empty file; expected a header row such as x,y,value,unit", where=str(path))
+    _check_header(fields, path)
     reader.fieldnames = fields
     has_xy = {"x", "y"} <= set(fields)
     has_ll = {"lon", "lat"} <= set(fields)
     if not (has_xy or has_ll):
-        raise MapperError("header needs x,y or lon,lat columns", where=f"{path}:1")
+        raise MapperError(f"header needs x,y or lon,lat columns{_separator_hint(fields)}", where=f"{path}:1")
     if "value" not in fields:
         raise MapperError("header needs a 'value' column", where=f"{path}:1")
     if "unit" not in fields and unit is None:
@@ -251,6 +251,23 @@ def write_rejected(path: str | Path, rejected: Sequence[RejectedRow]) -> Path:
     return out
 
 
+def _check_header(fields: Sequence[str], path: Path) -> None:
+    """Refuse a header that names a column twice (which of the two would count is a guess)."""
+    seen: set[str] = set()
+    for name in fields:
+        if name and name in seen:
+            raise MapperError(f"column {name!r} appears twice in the header; keep one", where=f"{path}:1")
+        seen.add(name)
+
+
+def _separator_hint(fields: Sequence[str]) -> str:
+    """A note for a header that is one cell holding semicolons or tabs (not comma-separated)."""
+    if len(fields) == 1 and (";" in fields[0] or "\t" in fields[0]):
+        sep = "semicolons" if ";" in fields[0] else "tabs"
+        return f"; the file is separated by {sep}, mapper reads comma-separated CSV"
+    return ""
+
+
 class _RowError(Exception):
     def __init__(self, column: str, message: str) -> None:
         self.column = column
@@ -280,8 +297,10 @@ def is_conditions_csv(path: str | Path) -> bool:
     """True when a CSV's header names condition columns and no ``value`` column."""
     if not Path(path).exists():
         raise MapperError("file not found", where=str(path))
-    with Path(path).open(encoding="utf-8-sig") as handle:
-        header = {h.strip() for h in (next(csv.reader(handle), []) or [])}
+    if Path(path).is_dir():
+        raise MapperError("is a folder, not a CSV file", where=str(path))
+    text = read_utf8(path, "CSV file")
+    header = {h.strip() for h in (next(csv.reader(text.splitlines()), []) or [])}
     return "value" not in header and bool({"rh_percent", "temperature_c"} & header)
 
 
@@ -293,8 +312,10 @@ def parse_conditions_csv(path: str | Path, tz: tzinfo | None = None) -> list[Con
     """
     path = Path(path)
     rows = []
-    with path.open(encoding="utf-8-sig", newline="") as handle:
-        for line, row in enumerate(csv.DictReader(handle), start=2):
+    with open_utf8(path, "conditions file") as handle:
+        reader = csv.DictReader(handle, restval="")
+        _check_header([f.strip() for f in reader.fieldnames or []], path)
+        for line, row in enumerate(reader, start=2):
             column = "time"
             try:
                 time = parse_time(row["time"], tz) if (row.get("time") or "").strip() else None

@@ -19,6 +19,7 @@ from pathlib import Path
 
 from mapper.errors import MapperError
 from mapper.readings.tracks import Track, parse_time
+from mapper.textfile import open_utf8
 from mapper.units import parse_field, to_physics_sign
 
 #: Largest time between a logged reading and the nearest track position for it to be placed,
@@ -155,10 +156,7 @@ def read_meter_log(
         In file order, which must be time order.
     """
     path = Path(path)
-    try:
-        handle = path.open(newline="", encoding="utf-8-sig")
-    except OSError as exc:
-        raise MapperError(f"cannot read log: {exc.strerror}", where=str(path)) from None
+    handle = open_utf8(path, "log")
     entries: list[LogEntry] = []
     with handle:
         reader = csv.reader(handle)

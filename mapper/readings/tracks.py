@@ -21,6 +21,7 @@ from pathlib import Path
 
 from mapper.errors import MapperError
 from mapper.readings.importing import parse_time
+from mapper.textfile import open_utf8, read_utf8
 from mapper.units import parse_number
 
 #: File name endings read as NMEA 0183 sentences.
@@ -112,10 +113,7 @@ def _check_order(fixes: Sequence[TrackFix]) -> None:
 
 
 def _open_csv(path: Path) -> tuple[list[str], csv.reader, object]:
-    try:
-        handle = path.open(newline="", encoding="utf-8-sig")
-    except OSError as exc:
-        raise MapperError(f"cannot read file: {exc.strerror}", where=str(path)) from None
+    handle = open_utf8(path, "track file")
     reader = csv.reader(handle)
     try:
         header = [h.strip().lower() for h in next(reader)]
@@ -205,10 +203,7 @@ def read_gpx(path: str | Path) -> Track:
     import gpxpy.gpx
 
     path = Path(path)
-    try:
-        text = path.read_text(encoding="utf-8")
-    except OSError as exc:
-        raise MapperError(f"cannot read GPX file: {exc.strerror}", where=str(path)) from None
+    text = read_utf8(path, "GPX file")
     try:
         gpx = gpxpy.parse(text)
     except gpxpy.gpx.GPXException as exc:

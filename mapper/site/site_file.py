@@ -20,6 +20,7 @@ from shapely.validation import explain_validity
 from mapper.errors import MapperError
 from mapper.site.georef import RMS_WARN_M, Georef, fit_similarity, utm_crs_for
 from mapper.site.model import BLOCKING_KINDS, SENSITIVE_KINDS, Asset, ControlPoint, Site, Zone
+from mapper.textfile import read_utf8
 from mapper.units import LENGTH_UNITS, parse_threshold
 
 VECTOR_SUFFIXES = (".gpkg", ".geojson", ".json", ".shp", ".dxf", ".fgb", ".kml", ".gml")
@@ -45,7 +46,7 @@ def load_site(path: str | Path, roles: Mapping[str, str] | None = None, units: s
     if not path.exists():
         raise MapperError("site file not found", where=str(path))
     if path.suffix.lower() == ".toml":
-        return site_from_toml_text(path.read_text(encoding="utf-8"), source=str(path))
+        return site_from_toml_text(read_utf8(path, "site file"), source=str(path))
     if path.suffix.lower() in VECTOR_SUFFIXES:
         if units not in LENGTH_UNITS:
             raise MapperError(f"unknown units {units!r}; accepted: {', '.join(LENGTH_UNITS)}")
@@ -193,7 +194,14 @@ def site_from_toml_text(text: str, source: str = "<site>") -> Site:
                 f"control point needs numeric x, y, lon, lat ({exc})",
                 where=_where(source, text, "control_point", i, "x"),
             ) from None
-    return _finish(name, outline, assets, zones, points, crs, source)
+    try:
+        return _finish(name, outline, assets, zones, points, crs, source)
+    except MapperError as exc:
+        if exc.where is not None:
+            raise
+        # the georeference refused the CRS or the control points: point at the file
+        key = ("site", 0, "crs") if "CRS" in exc.message else ("control_point", 0, "x")
+        raise MapperError(exc.message, where=_where(source, text, *key)) from None
 
 
 def _finish(name, outline, assets, zones, points, crs, source, georef: Georef | None = None) -> Site:
@@ -242,6 +250,7 @@ def site_from_vector_file(path: Path, roles: Mapping[str, str], factor: float = 
         layers = [str(row[0]) for row in pyogrio.list_layers(path)]
     except Exception as exc:
         raise MapperError(f"cannot read vector file: {str(exc).splitlines()[0]}", where=str(path)) from None
+    unknown = sorted(set(roles) - set(layers))
     frames = []
     for layer in layers:
         frame = gpd.read_file(path, layer=layer)
@@ -249,6 +258,11 @@ def site_from_vector_file(path: Path, roles: Mapping[str, str], factor: float = 
         frames.append(frame)
     if not frames:
         raise MapperError("vector file has no layers", where=str(path))
+    cad_layers = {str(v) for frame in frames if "Layer" in frame.columns for v in frame["Layer"].dropna()}
+    unknown = [name for name in unknown if name not in cad_layers]
+    if unknown:
+        known = ", ".join(sorted(set(layers) | cad_layers))
+        raise MapperError(f"--role names layer {unknown[0]!r}, which the file does not have; layers: {known}", where=str(path))
     crs = frames[0].crs
     for frame in frames[1:]:
         if frame.crs != crs:

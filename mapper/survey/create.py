@@ -9,6 +9,7 @@ from mapper.errors import MapperError
 from mapper.plan.grid import DEFAULT_SPACING_M, plan_grid
 from mapper.site.site_file import load_site
 from mapper.survey.store import Survey
+from mapper.textfile import read_utf8
 from mapper.units import SIGN_CONVENTIONS, canonical_unit, to_si
 
 #: Default action level: 125 V/in (ANSI/ESD S20.20-2014 cl. 8.3.1 value), in V/m.
@@ -59,7 +60,7 @@ def create_survey(
     site = load_site(site_path, roles, site_units)
     plan = plan_grid(site, spacing_m, layout)
     site_path = Path(site_path)
-    text = site_path.read_text(encoding="utf-8") if site_path.suffix.lower() == ".toml" else None
+    text = read_utf8(site_path, "site file") if site_path.suffix.lower() == ".toml" else None
     return Survey.create(
         survey_path,
         site,

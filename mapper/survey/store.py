@@ -3,9 +3,10 @@
 from __future__ import annotations
 
 import json
+import os
 import sqlite3
 from collections.abc import Iterable, Sequence
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from datetime import UTC, datetime
 from pathlib import Path
 
@@ -100,8 +101,12 @@ class Survey:
 
     # ----------------------------------------------------------------- opening
     @staticmethod
-    def _connect(path: Path) -> sqlite3.Connection:
-        conn = sqlite3.connect(path, isolation_level=None, timeout=10.0, check_same_thread=False)
+    def _connect(path: Path, immutable: bool = False) -> sqlite3.Connection:
+        if immutable:  # read-only folder: SQLite cannot make the -shm file a WAL reader needs
+            target = f"{path.resolve().as_uri()}?immutable=1"
+            conn = sqlite3.connect(target, uri=True, isolation_level=None, check_same_thread=False)
+        else:
+            conn = sqlite3.connect(path, isolation_level=None, timeout=10.0, check_same_thread=False)
         conn.row_factory = sqlite3.Row
         conn.execute("PRAGMA foreign_keys = ON")
         conn.execute("PRAGMA synchronous = FULL")
@@ -184,7 +189,10 @@ class Survey:
             lock.release()
             path.unlink(missing_ok=True)
             raise
-        return cls(path, conn, lock)
+        survey = cls(path, conn, lock)
+        # the stored site is read back, but the loader's warnings are not stored: keep them
+        survey._site = replace(survey.site, warnings=site.warnings)
+        return survey
 
     @classmethod
     def open(cls, path: str | Path, write: bool = False) -> Survey:
@@ -207,12 +215,39 @@ class Survey:
             raise MapperError(f"cannot read survey file: {exc.strerror}", where=str(path)) from None
         if header != b"SQLite format 3\x00":
             raise MapperError("not a survey file (not an SQLite database)", where=str(path))
+        if write and not os.access(path, os.W_OK):
+            raise MapperError(
+                "survey file is read-only; make it writable (chmod u+w) or work on a copy", where=str(path)
+            )
+        immutable = False
+        if not write and not os.access(path.parent, os.W_OK):
+            wal = Path(f"{path}-wal")
+            if wal.exists() and wal.stat().st_size > 0:
+                raise MapperError(
+                    f"survey file is in a read-only folder with unsaved-to-file changes in {wal.name}; "
+                    "copy the survey with its -wal file to a writable folder",
+                    where=str(path),
+                )
+            immutable = True
         lock = WriterLock(path) if write else None
         if lock:
             lock.acquire()
+        conn = None
         try:
-            conn = cls._connect(path)
-            app_id = conn.execute("PRAGMA application_id").fetchone()[0]
+            try:
+                conn = cls._connect(path, immutable)
+                app_id = conn.execute("PRAGMA application_id").fetchone()[0]
+                damage = conn.execute("PRAGMA quick_check(1)").fetchone()[0]
+            except sqlite3.DatabaseError as exc:
+                damage = str(exc)
+                app_id = APPLICATION_ID
+            if damage != "ok":
+                detail = [line for line in damage.splitlines() if line.strip() and not line.startswith("***")]
+                raise MapperError(
+                    f"survey file is damaged ({(detail or [damage])[0]}); nothing was read or written. "
+                    f"Restore it from a backup, or salvage its rows with: sqlite3 {path} .recover",
+                    where=str(path),
+                )
             if app_id != APPLICATION_ID:
                 raise MapperError("not a survey file (SQLite database of another program)", where=str(path))
             version = conn.execute("PRAGMA user_version").fetchone()[0]
@@ -224,6 +259,8 @@ class Survey:
             if version < SCHEMA_VERSION and write:
                 migrate(conn)
         except BaseException:
+            if conn is not None:
+                conn.close()
             if lock:
                 lock.release()
             raise
