@@ -14,7 +14,6 @@ import numpy as np
 
 from mapper.cli.common import fmt, say, table, threshold_arg, warn
 from mapper.errors import MapperError
-from mapper.export.compare_gpkg import LAYERS, RASTER, write_comparison_gpkg
 from mapper.export.pipeline import survey_file_products
 from mapper.features import compare_fields
 from mapper.features.cautions import CAUTIONS
@@ -66,6 +65,12 @@ def run(args) -> int:
         before.readings,
         after.readings,
     )
+    from mapper.export.compare_gpkg import (  # geopandas: load when writing
+        LAYERS,
+        RASTER,
+        write_comparison_gpkg,
+    )
+
     write_comparison_gpkg(out, cmp, before.site, unit)
     if args.json:
         say(
@@ -142,10 +147,13 @@ def run(args) -> int:
             ("", "before", "after"),
         )
     )
+    rise = (f"largest rise {fmt(s.max_increase_v_per_m, unit)}" if s.max_increase_v_per_m > 0
+            else "no rise anywhere")
+    fall = (f"largest fall {fmt(-s.max_decrease_v_per_m, unit)}" if s.max_decrease_v_per_m < 0
+            else "no fall anywhere")
     say(
         f"difference (after - before): mean {fmt(s.mean_difference_v_per_m, unit)}, mean |d| "
-        f"{fmt(s.mean_abs_difference_v_per_m, unit)}, largest rise "
-        f"{fmt(s.max_increase_v_per_m, unit)}, largest fall {fmt(s.max_decrease_v_per_m, unit)}"
+        f"{fmt(s.mean_abs_difference_v_per_m, unit)}, {rise}, {fall}"
     )
     say(f"wrote      {out} (raster '{RASTER}', layers {', '.join(LAYERS)})")
     say("")

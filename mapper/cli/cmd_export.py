@@ -6,7 +6,6 @@ from pathlib import Path
 
 from mapper.cli.common import positive_float, print_notes, say, threshold_arg
 from mapper.errors import MapperError
-from mapper.export.bundle import export_products
 from mapper.export.pipeline import survey_products
 from mapper.field.build import METHODS
 from mapper.survey.store import Survey
@@ -48,6 +47,8 @@ def run(args) -> int:
     with Survey.open(args.survey) as survey:
         products = survey_products(survey, args.threshold, args.method, args.cell)
     print_notes(products)
+    from mapper.export.bundle import export_products  # geopandas, rasterio: load when writing
+
     result = export_products(products, args.out, csv_path=args.csv)
     for line in result.lines(products):
         say(line)

@@ -74,7 +74,7 @@ def run(args) -> int:
         if parsed.rejected:
             out = write_rejected(args.file, parsed.rejected)
             warn(f"{len(parsed.rejected)} bad rows not imported; see {out}")
-        say(f"imported {len(stored)} readings into {survey.path}")
+        say(f"imported {_count(len(stored), 'reading')} into {survey.path}")
     return 0
 
 
@@ -104,10 +104,16 @@ def _import_log(args, tz) -> int:
             naive_tz=tz or UTC,
             meter_id=args.meter,
         )
-        for line in result.report():
+        lines = result.report()
+        say(lines[0])  # the counts
+        for line in lines[1:]:  # readings not placed, and why
             warn(line)
         if not result.readings:
             raise MapperError("no log reading could be placed on the site; nothing imported", where=args.file)
         stored = survey.add_readings(result.readings, source=os.path.basename(args.file))
-        say(f"imported {len(stored)} readings from the log into {survey.path}")
+        say(f"imported {_count(len(stored), 'reading')} from the log into {survey.path}")
     return 0
+
+
+def _count(n: int, noun: str) -> str:
+    return f"{n} {noun}" + ("" if n == 1 else "s")

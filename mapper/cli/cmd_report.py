@@ -7,7 +7,6 @@ from pathlib import Path
 from mapper.cli.cmd_export import check_output
 from mapper.cli.common import positive_float, print_notes, say, threshold_arg
 from mapper.export.pipeline import survey_products
-from mapper.export.report import write_report
 from mapper.field.build import METHODS
 from mapper.survey.store import Survey
 
@@ -35,6 +34,8 @@ def run(args) -> int:
         products = survey_products(survey, args.threshold, args.method, args.cell)
     print_notes(products)
     png = None if args.png is None else (Path(args.png) if args.png else Path(args.out).with_suffix(".png"))
+    from mapper.export.report import write_report  # matplotlib: load only when drawing
+
     result = write_report(products, args.out, png_path=png)
     say(f"wrote {result.pdf} ({result.pages} pages)")
     if result.png is not None:

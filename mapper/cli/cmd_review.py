@@ -32,9 +32,11 @@ def register(sub) -> None:
 def set_excluded(survey: Survey, reading_id: int, excluded: bool, reason: str = "") -> int:
     """Flag or unflag a current reading as excluded; returns the id of the superseding row."""
     current = {r.id: r for r in survey.readings(kind=None)}
-    if reading_id not in current:
+    latest = survey.current_version(reading_id)  # an id from before an edit still finds the reading
+    if latest is None or latest not in current:
         raise MapperError(f"reading {reading_id} is not a current reading (see 'mapper review')")
-    reading = current[reading_id]
+    reading = current[latest]
+    reading_id = latest
     flags = [f for f in reading.flags if f != EXCLUDED_FLAG]
     if excluded:
         if EXCLUDED_FLAG in reading.flags:

@@ -5,38 +5,35 @@ and the GeoPackage of a before/after comparison.
 export, the report and the terminal app all read its :class:`Products`.
 """
 
-from mapper.export.bundle import ExportResult, export_products
-from mapper.export.compare_gpkg import write_comparison_gpkg
-from mapper.export.crs import ExportCRS, export_crs
-from mapper.export.csv_out import write_readings_csv
-from mapper.export.gpkg import GpkgResult, write_geopackage
-from mapper.export.metadata import MetaRow, metadata_rows
-from mapper.export.pipeline import (
-    MIN_FIELD_POSITIONS,
-    Products,
-    survey_file_products,
-    survey_products,
-)
-from mapper.export.raster import grid_transform, write_geotiff
-from mapper.export.report import ReportResult, write_report
+import importlib
 
-__all__ = [
-    "MIN_FIELD_POSITIONS",
-    "ExportCRS",
-    "ExportResult",
-    "GpkgResult",
-    "MetaRow",
-    "Products",
-    "ReportResult",
-    "export_crs",
-    "export_products",
-    "grid_transform",
-    "metadata_rows",
-    "survey_file_products",
-    "survey_products",
-    "write_comparison_gpkg",
-    "write_geopackage",
-    "write_geotiff",
-    "write_readings_csv",
-    "write_report",
-]
+#: Public names and the module each lives in; loaded on first use, so that commands which do not
+#: draw (``info``, ``hotspots`` ...) do not pay for matplotlib.
+_WHERE = {
+    "ExportResult": "bundle",
+    "export_products": "bundle",
+    "write_comparison_gpkg": "compare_gpkg",
+    "ExportCRS": "crs",
+    "export_crs": "crs",
+    "write_readings_csv": "csv_out",
+    "GpkgResult": "gpkg",
+    "write_geopackage": "gpkg",
+    "MetaRow": "metadata",
+    "metadata_rows": "metadata",
+    "MIN_FIELD_POSITIONS": "pipeline",
+    "Products": "pipeline",
+    "survey_file_products": "pipeline",
+    "survey_products": "pipeline",
+    "grid_transform": "raster",
+    "write_geotiff": "raster",
+    "ReportResult": "report",
+    "write_report": "report",
+}
+
+__all__ = sorted(_WHERE)
+
+
+def __getattr__(name: str):
+    if name in _WHERE:
+        return getattr(importlib.import_module(f"mapper.export.{_WHERE[name]}"), name)
+    raise AttributeError(f"module 'mapper.export' has no attribute {name!r}")

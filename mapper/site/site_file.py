@@ -163,8 +163,8 @@ def site_from_toml_text(text: str, source: str = "<site>") -> Site:
                 name=str(item.get("name", f"{kind} {i + 1}")),
                 kind=kind,
                 geometry=geom,
-                sensitive=bool(item.get("sensitive", kind in SENSITIVE_KINDS)),
-                walkable=bool(item.get("walkable", kind not in BLOCKING_KINDS)),
+                sensitive=_flag(item, "sensitive", kind in SENSITIVE_KINDS, _where(source, text, "asset", i, "sensitive")),
+                walkable=_flag(item, "walkable", kind not in BLOCKING_KINDS, _where(source, text, "asset", i, "walkable")),
             )
         )
     zones = []
@@ -289,11 +289,20 @@ def site_from_vector_file(path: Path, roles: Mapping[str, str], factor: float = 
                 outline_parts.append((geom, where))
             elif role == "zone":
                 limit = row.get("limit")
-                limit_v = parse_threshold(str(limit)) if isinstance(limit, str) and limit else None
+                limit_v = None
+                if limit is not None and not (isinstance(limit, float) and np.isnan(limit)) and str(limit).strip():
+                    try:
+                        limit_v = parse_threshold(str(limit))
+                    except MapperError as exc:
+                        raise MapperError(f"'limit': {exc.message}", where=where) from None
                 zones.append(Zone(name, geom, limit_v, str(row.get("zone_kind") or "zone")))
             else:
                 assets.append(
-                    Asset(name, role, geom, role in SENSITIVE_KINDS, role not in BLOCKING_KINDS)
+                    Asset(
+                        name, role, geom,
+                        _flag(row, "sensitive", role in SENSITIVE_KINDS, where, words=True),
+                        _flag(row, "walkable", role not in BLOCKING_KINDS, where, words=True),
+                    )
                 )
     if not outline_parts:
         raise MapperError("no outline: mark one polygon with kind=outline or --role LAYER=outline", where=str(path))
@@ -324,6 +333,27 @@ def site_from_vector_file(path: Path, roles: Mapping[str, str], factor: float = 
         zones = [Zone(z.name, _scale(z.geometry, factor), z.limit_v_per_m, z.kind) for z in zones]
     name = path.stem.replace("_", " ")
     return _finish(name, outline, assets, zones, [], georef.crs if georef else None, str(path), georef)
+
+
+_FLAG_WORDS = {"true": True, "false": False, "yes": True, "no": False, "1": True, "0": False}
+
+
+def _flag(item, key: str, default: bool, where: str, words: bool = False) -> bool:
+    """A true/false attribute (or 0/1); anything else, such as ``"false"`` in quotes, is refused.
+
+    ``words=True`` (vector files, whose formats often store booleans as text) also accepts the
+    words true/false and yes/no.
+    """
+    value = item.get(key) if hasattr(item, "get") else None
+    if words and isinstance(value, str) and value.strip().lower() in _FLAG_WORDS:
+        return _FLAG_WORDS[value.strip().lower()]
+    if value is None or (isinstance(value, float) and np.isnan(value)):
+        return default
+    if isinstance(value, bool | np.bool_):
+        return bool(value)
+    if isinstance(value, int | float | np.integer | np.floating) and value in (0, 1):
+        return bool(value)  # GIS formats store booleans as 0/1 integers
+    raise MapperError(f"'{key}' must be true or false (unquoted), got {value!r}", where=where)
 
 
 def _role_of(row, roles: Mapping[str, str]) -> str | None:

@@ -445,6 +445,19 @@ class Survey:
             _log(self.conn, action, {"reading": reading_id, "new": cur.lastrowid})
         return int(cur.lastrowid)
 
+    def current_version(self, reading_id: int) -> int | None:
+        """Id of the current row a reading became through edits, or ``None`` if it no longer counts."""
+        seen = reading_id
+        while True:
+            if self.is_current(seen):
+                return seen
+            row = self.conn.execute(
+                "SELECT id FROM readings WHERE replaces = ? ORDER BY id DESC LIMIT 1", (seen,)
+            ).fetchone()
+            if row is None:
+                return None
+            seen = row["id"]
+
     def is_current(self, reading_id: int) -> bool:
         """True when a row is a reading that counts (not edited, undone or excluded since)."""
         row = self.conn.execute("SELECT action FROM readings WHERE id = ?", (reading_id,)).fetchone()

@@ -167,3 +167,27 @@ def test_sample_sites_load():
     assert hall.georef is not None and hall.georef.rms_m < 0.05 and not hall.warnings
     yard = load_site(SAMPLES / "east_yard.geojson")
     assert yard.georef is not None and yard.area_m2 == pytest.approx(9600.0, rel=1e-3)
+
+
+def test_quoted_boolean_refused():
+    text = ISSUE_EXAMPLE.replace('wkt = "LINESTRING (8 8, 34 8)"', 'wkt = "LINESTRING (8 8, 34 8)"\nsensitive = "false"')
+    with pytest.raises(MapperError, match=r"'sensitive' must be true or false"):
+        site_from_toml_text(text, source="s.toml")
+
+
+def test_vector_sensitive_attribute_and_zone_limit(tmp_path):
+    import geopandas as gpd
+    from shapely.geometry import Polygon
+
+    path = tmp_path / "plan.gpkg"
+    frame = gpd.GeoDataFrame(
+        {"kind": ["outline", "cabinet", "zone"], "name": ["hall", "tester", "bay"],
+         "sensitive": [None, True, None], "limit": [None, None, "1 kV/m"]},
+        geometry=[Polygon([(0, 0), (30, 0), (30, 20), (0, 20)]), Polygon([(2, 2), (4, 2), (4, 3), (2, 3)]),
+                  Polygon([(10, 10), (20, 10), (20, 15), (10, 15)])],
+        crs="EPSG:25832",
+    )
+    frame.to_file(path, layer="plan")
+    site = load_site(path)
+    assert site.assets[0].sensitive is True  # kind 'cabinet' is not sensitive by default
+    assert site.zones[0].limit_v_per_m == 1000.0
