@@ -2,9 +2,11 @@
 
 from __future__ import annotations
 
+import hashlib
 import os
 import sys
 import time
+from pathlib import Path
 from zoneinfo import ZoneInfo, ZoneInfoNotFoundError
 
 from mapper.cli.common import positive_float, say, unit_arg, warn
@@ -35,6 +37,7 @@ def register(sub) -> None:
         help="with --log: largest time gap to a track position (default 10 s)",
     )
     p.add_argument("--meter", default=None, help="with --log: meter id of the log (default the survey's meter)")
+    p.add_argument("--again", action="store_true", help="import a file whose readings this survey already holds")
     p.set_defaults(func=run)
 
 
@@ -70,7 +73,8 @@ def run(args) -> int:
         delay = float(os.environ.get("MAPPER_TEST_IMPORT_DELAY", "0") or 0)
         if delay:  # test hook: slow the open transaction down so a test can kill the process in it
             survey.conn.set_progress_handler(lambda: _slow_down(survey, delay), 1000)
-        stored = survey.add_readings(parsed.readings, source=os.path.basename(args.file))
+        digest = _refuse_repeat(survey, args, [args.file])
+        stored = survey.add_readings(parsed.readings, source=os.path.basename(args.file), digest=digest)
         if parsed.rejected:
             out = write_rejected(args.file, parsed.rejected)
             warn(f"{len(parsed.rejected)} bad rows not imported; see {out}")
@@ -110,10 +114,27 @@ def _import_log(args, tz) -> int:
             warn(line)
         if not result.readings:
             raise MapperError("no log reading could be placed on the site; nothing imported", where=args.file)
-        stored = survey.add_readings(result.readings, source=os.path.basename(args.file))
+        digest = _refuse_repeat(survey, args, [args.file, args.track])
+        stored = survey.add_readings(result.readings, source=os.path.basename(args.file), digest=digest)
         say(f"imported {_count(len(stored), 'reading')} from the log into {survey.path}")
     return 0
 
 
 def _count(n: int, noun: str) -> str:
     return f"{n} {noun}" + ("" if n == 1 else "s")
+
+
+def _refuse_repeat(survey: Survey, args, paths: list[str]) -> str:
+    """Content hash of the input files; refuses files this survey already imported, unless --again."""
+    sha = hashlib.sha256()
+    for path in paths:
+        sha.update(Path(path).read_bytes())
+    digest = sha.hexdigest()
+    earlier = survey.imported_before(digest)
+    if earlier and not args.again:
+        raise MapperError(
+            f"these readings were already imported into this survey on {earlier} (same file content); "
+            "nothing imported — pass --again to import them a second time",
+            where=args.file,
+        )
+    return digest

@@ -350,7 +350,9 @@ class Survey:
         """Store one reading; returns it once committed."""
         return self.add_readings([reading], source=source)[0]
 
-    def add_readings(self, readings: Sequence[NewReading], source: str = "import") -> list[Reading]:
+    def add_readings(
+        self, readings: Sequence[NewReading], source: str = "import", digest: str | None = None
+    ) -> list[Reading]:
         """Store readings in one transaction: all of them or, on any error, none.
 
         Parameters
@@ -359,6 +361,9 @@ class Survey:
             Validated readings.
         source : str
             Where they came from (``entry``, a file name ...), kept with each row and in the log.
+        digest : str, optional
+            Content hash of the imported file(s), kept in the log so a second import of the same
+            file can be noticed (:meth:`imported_before`).
         """
         self._require_write()
         current_meter = self.get("current_meter", DEFAULT_METER)
@@ -380,11 +385,23 @@ class Survey:
                 self.conn.execute("BEGIN IMMEDIATE")
                 first = self.conn.execute("SELECT COALESCE(MAX(id), 0) + 1 FROM readings").fetchone()[0]
                 self.conn.executemany(_INSERT_READING, rows)
-                _log(self.conn, "readings", {"count": len(rows), "source": source, "first_id": first})
+                detail = {"count": len(rows), "source": source, "first_id": first}
+                if digest:
+                    detail["sha256"] = digest
+                _log(self.conn, "readings", detail)
         except sqlite3.IntegrityError as exc:
             raise MapperError(f"reading refused by the survey file: {exc}", where=str(self.path)) from None
         ids = range(first, first + len(rows))
         return [self.reading(i) for i in ids] if len(rows) < 50 else self._readings_by_ids(ids)
+
+    def imported_before(self, digest: str) -> str | None:
+        """When readings with this content hash were imported, or ``None`` if never."""
+        row = self.conn.execute(
+            "SELECT time_utc FROM events WHERE kind = 'readings' AND json_extract(detail, '$.sha256') = ? "
+            "ORDER BY id LIMIT 1",
+            (digest,),
+        ).fetchone()
+        return row["time_utc"] if row else None
 
     def supersede(self, reading_id: int, action: str, changes: dict | None = None) -> int:
         """Replace a current reading by a new row; nothing is ever deleted.

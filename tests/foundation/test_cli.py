@@ -171,3 +171,15 @@ def test_sigkill_during_import_leaves_file_intact(box_survey, tmp_path):
     result = mapper("import", box_survey, csv)  # the lock died with the process
     assert result.returncode == 0, result.stderr
     assert "imported 3000 readings" in result.stdout
+
+
+def test_second_import_of_same_file_refused_unless_again(box_survey, tmp_path):
+    csv = tmp_path / "in.csv"
+    csv.write_text("x,y,value,unit\n1,1,5,V/m\n3,1,6,V/m\n")
+    assert mapper("import", box_survey, csv).returncode == 0
+    before = digest(box_survey)
+    result = mapper("import", box_survey, csv)
+    assert_one_line_error(result, "already imported", "--again")
+    assert digest(box_survey) == before
+    result = mapper("import", box_survey, csv, "--again")
+    assert result.returncode == 0 and "imported 2 readings" in result.stdout
