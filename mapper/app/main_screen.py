@@ -22,11 +22,12 @@ from mapper.app.keys import bindings
 from mapper.app.legend import Legend, legend_text
 from mapper.app.live import MIN_POSITIONS_FOR_ESTIMATE, LiveResult, refit
 from mapper.app.map_view import MapView
-from mapper.app.palette import FEATURE_COLOURS, diverging, hex_rgb, nice_ceiling
+from mapper.app.palette import FEATURE_COLOURS, diverging, hex_rgb
 from mapper.app.raster import LAYER_TITLES, LAYERS, Markers
 from mapper.app.session import DRY_AIR_RH_PERCENT, WalkSession, parse_conditions, parse_xy
 from mapper.corrections.pipeline import load_meters
 from mapper.errors import MapperError
+from mapper.nice import nice_ceiling
 from mapper.readings.serial_meter import MeterLine, SerialMeterReader
 from mapper.survey.store import utc_now
 from mapper.units import FIELD_UNITS, format_field, from_si

@@ -6,8 +6,6 @@ is coloured in one call. Colours are ``uint8`` RGB triples.
 
 from __future__ import annotations
 
-import math
-
 import numpy as np
 
 #: ColorBrewer RdBu, 11 classes (Brewer, colorbrewer2.org), from strong negative (blue) to strong
@@ -72,12 +70,3 @@ def sequential(values: np.ndarray, vmax: float) -> np.ndarray:
     return _ramp(SEQUENTIAL, np.asarray(values, dtype=float) / vmax)
 
 
-def nice_ceiling(value: float) -> float:
-    """Smallest of 1, 2, 2.5, 5 times a power of ten that is >= ``value`` (> 0)."""
-    if not value > 0 or not math.isfinite(value):
-        return 1.0
-    p = 10.0 ** math.floor(math.log10(value))
-    for m in (1.0, 2.0, 2.5, 5.0, 10.0):
-        if value <= m * p * (1 + 1e-9):
-            return m * p
-    return 10.0 * p

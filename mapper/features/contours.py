@@ -18,10 +18,11 @@ from shapely.geometry.base import BaseGeometry
 from mapper.errors import MapperError
 from mapper.features._grid import clip_lines, extend_grid, filled_region, iso_line, polygonal
 from mapper.field.model import FieldGrid
+from mapper.nice import nice_ceiling
 from mapper.units import canonical_unit, from_si, to_si
 
 #: Mantissas of nice steps.
-_NICE = (1.0, 2.0, 2.5, 5.0, 10.0)
+
 
 
 @dataclass(frozen=True)
@@ -127,13 +128,7 @@ def nice_step(span: float, count: int) -> float:
     count : int
         Wanted number of intervals, >= 1.
     """
-    raw = span / max(count, 1)
-    exponent = math.floor(math.log10(raw))
-    base = 10.0**exponent
-    for mantissa in _NICE:
-        if mantissa * base >= raw * (1 - 1e-12):
-            return mantissa * base
-    return 10.0 * base  # pragma: no cover - _NICE ends at 10
+    return nice_ceiling(span / max(count, 1))
 
 
 def nice_levels(

@@ -20,6 +20,7 @@ from mapper.field.rbf import RBF, _cv_subset
 from mapper.field.repeats import merge_repeats
 from mapper.field.uncertainty import calibrate_std
 from mapper.field.variogram import Variogram
+from mapper.nice import nice_ceiling
 
 #: Methods accepted by :func:`build_field`.
 METHODS = ("auto", "kriging", "universal", "rbf", "idw")
@@ -43,15 +44,6 @@ NO_STD_METHODS = ("rbf", "idw")
 _WHERE = "build_field"
 
 
-def _nice(step: float) -> float:
-    """Round a cell size up to 1, 2, 2.5 or 5 times a power of ten, metres."""
-    if step <= 0:
-        return 1.0
-    p = 10.0 ** math.floor(math.log10(step))
-    for m in (1.0, 2.0, 2.5, 5.0, 10.0):
-        if step <= m * p * (1 + 1e-9):
-            return m * p
-    return 10.0 * p
 
 
 def data_spacing(xy: np.ndarray) -> float:
@@ -71,9 +63,9 @@ def default_cell(xy: np.ndarray, bounds: tuple[float, float, float, float], max_
     spacing = data_spacing(xy)
     cell = spacing / 3.0 if spacing > 0 else max(w, h) / 100.0
     cell = max(cell, math.sqrt(w * h / max_nodes))
-    cell = _nice(cell)
+    cell = nice_ceiling(cell)
     while math.ceil(w / cell) * math.ceil(h / cell) > max_nodes:
-        cell = _nice(cell * 1.01)
+        cell = nice_ceiling(cell * 1.01)
     return cell
 
 

@@ -9,8 +9,9 @@ import pytest
 import shapely
 
 from mapper.app import live
-from mapper.app.palette import DIVERGING, diverging, hex_rgb, nice_ceiling, sequential
+from mapper.app.palette import DIVERGING, diverging, hex_rgb, sequential
 from mapper.app.raster import make_frame
+from mapper.nice import nice_ceiling
 from mapper.readings.model import Reading
 from mapper.site.model import Site
 
