@@ -339,7 +339,11 @@ def draw_map_page(fig: Figure, products: Products) -> None:
             _lines(ax, h.geometry, color="white", linewidth=3.4, zorder=11)
             _lines(ax, h.geometry, color=color, linewidth=1.9, zorder=12)
             bx = h.geometry.bounds
-            ax.text(bx[2], bx[3], h.id, fontsize=9, fontweight="bold", color="white", ha="left", va="bottom",
+            # the label sits at the outline's upper right, turned inward near the map's edges
+            near_right = bx[2] > bounds[2] - 0.25 * (bounds[2] - bounds[0])
+            near_top = bx[3] > bounds[3] - 0.08 * (bounds[3] - bounds[1])
+            ax.text(bx[2], bx[3], h.id, fontsize=9, fontweight="bold", color="white",
+                    ha="right" if near_right else "left", va="top" if near_top else "bottom",
                     zorder=13, bbox={"boxstyle": "round,pad=0.2", "fc": color, "ec": "white", "lw": 0.8})
     else:
         ax.text(0.5, 0.55, "No field map: " + (p.no_field_reason or "no field model"), transform=ax.transAxes,
