@@ -18,7 +18,8 @@ from datetime import UTC, date, datetime, tzinfo
 from pathlib import Path
 
 from mapper.errors import MapperError
-from mapper.readings.tracks import Track, parse_time
+from mapper.readings.importing import parse_time
+from mapper.readings.tracks import Track
 from mapper.textfile import open_utf8
 from mapper.units import parse_field, to_physics_sign
 
