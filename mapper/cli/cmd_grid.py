@@ -6,7 +6,8 @@ from mapper.cli.common import fmt, neighbors_arg, positive_float, say, table, wa
 from mapper.corrections.pipeline import correct_survey
 from mapper.errors import MapperError
 from mapper.field import METHODS, MODELS, Variogram, build_field, field_to_bytes
-from mapper.field.inputs import MIN_FIELD_POSITIONS, distinct_positions, field_inputs
+from mapper.field.inputs import MIN_FIELD_POSITIONS, distinct_positions, field_heights, field_inputs
+from mapper.field.physical import seeds_from_site
 from mapper.survey.store import Survey
 
 
@@ -21,6 +22,8 @@ def register(sub) -> None:
     p.add_argument("survey", help="survey file")
     p.add_argument("--method", choices=METHODS, default="auto", help="interpolation method (default auto)")
     p.add_argument("--cell", type=positive_float, metavar="METRES", help="grid cell size in metres")
+    p.add_argument("--height", type=positive_float, metavar="METRES",
+                   help="map the field at this height above the floor (physical model only)")
     p.add_argument("--neighbors", type=neighbors_arg, metavar="K", help="moving neighbourhood size (default: automatic)")
     v = p.add_argument_group("variogram (kriging methods; used as is, not fitted)")
     v.add_argument("--variogram", choices=MODELS, metavar="MODEL", help=f"model: {', '.join(MODELS)}")
@@ -41,7 +44,7 @@ def variogram_from_args(args) -> Variogram | None:
         if given:
             raise MapperError(f"--{given[0]} needs --variogram MODEL ({', '.join(MODELS)})")
         return None
-    if args.method in ("rbf", "idw"):
+    if args.method in ("rbf", "idw", "physics"):
         raise MapperError(f"--variogram applies to kriging methods, not --method {args.method}")
     if args.variogram == "linear":
         if args.slope is None:
@@ -75,7 +78,8 @@ def run(args) -> int:
             )
         grid = build_field(
             xy, values, survey.site.outline, method=method, cell_m=args.cell,
-            neighbors=args.neighbors, variogram=variogram,
+            neighbors=args.neighbors, variogram=variogram, heights_m=field_heights(corrected.readings),
+            seeds=seeds_from_site(survey.site), height_m=args.height,
         )
         summary = {
             "method": grid.method,
@@ -111,6 +115,16 @@ def run(args) -> int:
         say("leave-one-out cross-validation (* = chosen):")
         say(table(rows, ["method", "n", "RMSE", "MAE", "mean error", "std. error mean / RMS"]))
         say("standardised errors near 0 (mean) and 1 (RMS) mean the standard deviation map is honest")
+    split = grid.params.get("loo_split")
+    if split:
+        for name, label in (("near_sources", "near sources"), ("quiet", "elsewhere")):
+            st = split[name]
+            if st["n"]:
+                rms = "-" if st["rms_standardized"] is None else f"{st['rms_standardized']:.2f}"
+                say(f"  {label}: {st['n']} readings, RMSE {fmt(st['rmse_v_per_m'], unit)}, standardised RMS {rms}")
+    phys = grid.params.get("physics")
+    if phys:
+        say(f"physical model: {len(phys['sources'])} source(s); see 'mapper sources {args.survey}'")
     source = grid.params.get("std_source")
     if source:
         say(f"standard deviation: {source}")

@@ -20,6 +20,7 @@ COMMANDS = (
     "cmd_review",
     "cmd_grid",
     "cmd_hotspots",
+    "cmd_sources",
     "cmd_compare",
     "cmd_export",
     "cmd_report",

@@ -12,11 +12,13 @@ from dataclasses import dataclass
 
 import geopandas as gpd
 import pandas as pd
+import shapely
 from shapely.geometry import Point
 
 from mapper.export.crs import transform_all
 from mapper.export.pipeline import Products, is_excluded
 from mapper.export.styles import band_colors
+from mapper.features.sources import source_records
 from mapper.units import from_si
 
 
@@ -245,16 +247,40 @@ def advice_layer(products: Products) -> Layer:
     return Layer("advice", frame, "Point", "suggested places for the next readings, rank 1 first")
 
 
+#: Columns of the ``sources`` layer (SI: coulombs, metres, V/m).
+SOURCE_COLUMNS = ("source_id", "kind", "asset", "charge_c", "charge_std_c", "height_m", "height_std_m",
+                  "peak_v_per_m", "peak_display", "status", "position_std_m")
+
+
+def sources_layer(products: Products) -> Layer:
+    """The physical field model's charged sources (points, lines and patches)."""
+    rows = source_records(products.grid, products.site)
+    unit = products.display_unit
+    records = [{**{k: r[k] for k in SOURCE_COLUMNS if k in r}, "peak_display": _display(r["peak_v_per_m"], unit)}
+               for r in rows]
+    frame = _frame(records, [shapely.from_wkt(r["wkt"]) for r in rows], products, SOURCE_COLUMNS)
+    for col in ("charge_c", "charge_std_c", "height_m", "height_std_m", "peak_v_per_m", "peak_display",
+                "position_std_m"):
+        frame[col] = frame[col].astype(float)
+    return Layer("sources", frame, "Unknown",
+                 "likely charged objects from the physical field model: charge (C) and height (m) with "
+                 "standard errors, peak field at the meter height (V/m)")
+
+
 def all_layers(products: Products) -> list[Layer]:
     """Every layer the products allow: the base layers always, field layers with a field model."""
     layers = [readings_layer(products), site_layer(products), zones_layer(products), assets_layer(products)]
     if products.has_field:
         layers += [contours_layer(products), bands_layer(products), hotspots_layer(products),
                    probable_layer(products), violations_layer(products), advice_layer(products)]
+        if products.grid.method == "physics":
+            layers.append(sources_layer(products))
     return layers
 
 
 #: Layers only written with a field model.
 FIELD_LAYERS = ("contours", "bands", "hotspots", "probable_exceedance", "violations", "advice")
+#: Layers only written with a physical field model.
+PHYSICS_LAYERS = ("sources",)
 
 __all__ = ["FIELD_LAYERS", "HOTSPOT_COLUMNS", "READING_COLUMNS", "Layer", "all_layers", "reading_records"]

@@ -24,10 +24,12 @@ from mapper.field.build import METHODS
 from mapper.field.inputs import (
     MIN_FIELD_POSITIONS,
     distinct_positions,
+    field_heights,
     field_inputs,
     is_excluded,
     usable,
 )
+from mapper.field.physical import seeds_from_site
 from mapper.readings.model import Conditions, CorrectedReading, Reading
 from mapper.site.model import Site
 from mapper.survey.store import Survey
@@ -195,7 +197,8 @@ class _FieldModel:
 
 
 def _field_model(
-    survey: Survey, xy, values, outline, method: str | None, cell_m: float | None, use_stored: bool
+    survey: Survey, xy, values, outline, method: str | None, cell_m: float | None, use_stored: bool,
+    heights_m=None, height_m: float | None = None,
 ) -> _FieldModel:
     """The survey's stored field model when it is current, else one interpolated now.
 
@@ -204,7 +207,7 @@ def _field_model(
     """
     remarks: list[str] = []
     build_method = method or "auto"
-    consult_store = use_stored and method is None and cell_m is None
+    consult_store = use_stored and method is None and cell_m is None and height_m is None
     stored = survey.latest_field() if consult_store else None
     if stored is not None:
         _, data, created = stored
@@ -224,7 +227,8 @@ def _field_model(
             "(run 'mapper grid' to store a new one)"
         )
     try:
-        grid = build_field(xy, values, outline, method=build_method, cell_m=cell_m)
+        grid = build_field(xy, values, outline, method=build_method, cell_m=cell_m, heights_m=heights_m,
+                           seeds=seeds_from_site(survey.site), height_m=height_m)
     except MapperError as exc:
         if cell_m is not None:  # the user's own --cell: say so instead of exporting without a map
             raise
@@ -246,6 +250,7 @@ def survey_products(
     *,
     use_stored: bool = True,
     unit: str | None = None,
+    height_m: float | None = None,
 ) -> Products:
     """Run the whole chain for one survey.
 
@@ -267,6 +272,8 @@ def survey_products(
         cases add a warning to ``notes`` (see :attr:`Products.warnings`).
     unit : str, optional
         Display unit; default the survey's.
+    height_m : float, optional
+        Map the field at this height above the floor, metres (physical model only; builds anew).
 
     Returns
     -------
@@ -299,7 +306,8 @@ def survey_products(
             f"the survey has {positions}"
         )
     else:
-        model = _field_model(survey, xy, values, site.outline, method, cell_m, use_stored)
+        model = _field_model(survey, xy, values, site.outline, method, cell_m, use_stored,
+                             field_heights(readings), height_m)
     notes.extend(model.remarks)
     grid, reason = model.grid, model.reason
     findings = None

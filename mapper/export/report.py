@@ -18,6 +18,7 @@ from pathlib import Path
 
 import matplotlib
 import numpy as np
+import shapely
 from matplotlib.backends.backend_pdf import PdfPages
 from matplotlib.cm import ScalarMappable
 from matplotlib.colors import BoundaryNorm, LinearSegmentedColormap, ListedColormap, Normalize
@@ -35,6 +36,7 @@ from mapper.export import styles as st
 from mapper.export.pipeline import Products
 from mapper.features import CAUTIONS, LIMITS_ARE_DEFAULTS
 from mapper.features.contours import Levels, nice_levels
+from mapper.features.sources import LIMITATIONS, source_records
 from mapper.survey.store import to_utc_text, utc_now
 from mapper.units import format_field, from_si
 
@@ -558,6 +560,56 @@ def draw_findings_page(fig: Figure, products: Products) -> None:
                                       linewidth=1.0, zorder=-1))
 
 
+def _charge_text(q: float) -> str:
+    return f"{q * 1e6:+.2f} µC" if abs(q) >= 1e-6 else f"{q * 1e9:+.1f} nC"
+
+
+def draw_sources_page(fig: Figure, products: Products) -> None:
+    """Page 3 (physical field model only): the likely charged objects, largest first."""
+    p = products
+    unit = p.display_unit
+    _title(fig, p, "likely charged objects")
+    rows = source_records(p.grid, p.site)
+    phys = p.grid.params.get("physics", {})
+    ax = fig.add_axes((0.06, 0.40, 0.88, 0.46))
+    _frame_axes(ax, p)
+    _draw_site(ax, p, labels=False)
+    for r in rows:
+        g = shapely.from_wkt(r["wkt"])
+        color = "#c0392b" if r["charge_c"] > 0 else "#1f5fa8"
+        if g.geom_type == "Point":
+            ax.scatter([g.x], [g.y], s=90, marker="*", color=color, edgecolor="black", linewidth=0.5, zorder=11)
+        elif g.geom_type.endswith("Polygon"):
+            _fill(ax, g, facecolor=color, edgecolor="black", linewidth=0.8, alpha=0.55, zorder=10)
+        else:
+            _lines(ax, g, color=color, linewidth=4.0, solid_capstyle="butt", zorder=10)
+        ax.annotate(r["source_id"], (r["x_m"], r["y_m"]), xytext=(5, 5), textcoords="offset points",
+                    fontsize=8, fontweight="bold", zorder=12,
+                    bbox={"boxstyle": "round,pad=0.12", "fc": "white", "ec": "none", "alpha": 0.8})
+    ax.set_title("Sources of the physical field model (red: positive charge, blue: negative)", fontsize=9.5,
+                 loc="left", color="#1b3a6b", fontweight="bold")
+    col = _Column(fig, 0.06, 0.34, 0.88)
+    col.heading("Likely charged objects, largest field first")
+    if not rows:
+        col.para("No charged source explains the readings better than the background and the meter's noise.")
+    else:
+        stops = (0.0, 0.05, 0.11, 0.33, 0.47, 0.63, 0.76)
+        col.row(["id", "kind", "where", "height", "charge", "peak field", "status"], stops, bold=True)
+        for r in rows[:10]:
+            where = r["asset"] or f"x {r['x_m']:.1f} m, y {r['y_m']:.1f} m"
+            col.row([r["source_id"], r["kind"], where, f"{r['height_m']:.2f} ± {r['height_std_m']:.2f} m",
+                     f"{_charge_text(r['charge_c'])} ± {_charge_text(abs(r['charge_std_c']))[1:]}",
+                     format_field(r["peak_v_per_m"], unit, 3), r["status"]], stops)
+    col.para(f"Meter height {phys.get('meter_height_m', 0.0):.2f} m; background field "
+             f"{format_field(phys.get('background_v_per_m', 0.0), unit, 3)}; meter error model "
+             f"{format_field(phys.get('noise_floor_v_per_m', 0.0), unit, 3)} + "
+             f"{100 * phys.get('noise_share', 0.0):.1f} % of the source field.", 7.5)
+    col.heading("What the survey cannot tell")
+    for text in LIMITATIONS:
+        col.para("• " + text, 7.4)
+    col.para("A field map is evidence, not a safety clearance. " + LIMITS_ARE_DEFAULTS, 7.0, color="#444444")
+
+
 def write_report(products: Products, pdf_path: str | Path, *, png_path: str | Path | None = None,
                  dpi: int = 160) -> ReportResult:
     """Write the PDF report (and optionally the map page as PNG).
@@ -587,6 +639,8 @@ def write_report(products: Products, pdf_path: str | Path, *, png_path: str | Pa
             "Subject": "field map and findings", "Creator": f"mapper {__version__}"}
     with matplotlib.rc_context(RC):
         pages = [draw_map_page, draw_findings_page]
+        if products.grid is not None and products.grid.method == "physics":
+            pages.append(draw_sources_page)
         figures = []
         for draw in pages:
             fig = Figure(figsize=PAGE_SIZE_IN)

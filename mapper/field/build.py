@@ -16,6 +16,8 @@ from mapper.field.fit import VariogramFit, fit_variogram
 from mapper.field.idw import IDW
 from mapper.field.kriging import OrdinaryKriging, UniversalKriging
 from mapper.field.model import CVStats, FieldGrid
+from mapper.field.physical import MIN_POSITIONS as PHYSICS_MIN_POSITIONS
+from mapper.field.physical import PhysicalModel, SourceSeed
 from mapper.field.rbf import RBF, _cv_subset
 from mapper.field.repeats import merge_repeats
 from mapper.field.uncertainty import calibrate_std
@@ -23,7 +25,7 @@ from mapper.field.variogram import Variogram
 from mapper.nice import nice_ceiling
 
 #: Methods accepted by :func:`build_field`.
-METHODS = ("auto", "kriging", "universal", "rbf", "idw")
+METHODS = ("auto", "kriging", "universal", "rbf", "idw", "physics")
 #: Default grid is capped at this many nodes (cell widened to fit).
 MAX_NODES = 250_000
 #: A grid asked for with more nodes than this is refused.
@@ -242,6 +244,22 @@ def _calibrated_std(chosen, ref, chosen_loo, chosen_cv, targets):
     return nan, extra, None, f"no standard deviation: {note}"
 
 
+def _loo_split(est: PhysicalModel, at: np.ndarray, err: np.ndarray, std: np.ndarray) -> dict:
+    """Leave-one-out statistics for readings near the fitted sources and for the rest."""
+    near = est.near_sources(at)
+    out = {}
+    for name, mask in (("near_sources", near), ("quiet", ~near)):
+        ok = mask & (std > 0)
+        zz = err[ok] / std[ok]
+        out[name] = {
+            "n": int(mask.sum()),
+            "rmse_v_per_m": float(np.sqrt(np.mean(err[mask] ** 2))) if mask.any() else None,
+            "rms_standardized": float(np.sqrt(np.mean(zz**2))) if zz.size else None,
+            "mean_standardized": float(np.mean(zz)) if zz.size else None,
+        }
+    return out
+
+
 def build_field(
     xy,
     values,
@@ -252,6 +270,9 @@ def build_field(
     neighbors: int | None = None,
     variogram: Variogram | None = None,
     fast: bool = False,
+    heights_m=None,
+    seeds: tuple[SourceSeed, ...] | None = None,
+    height_m: float | None = None,
 ) -> FieldGrid:
     """Interpolate readings onto a grid over the site outline.
 
@@ -276,6 +297,14 @@ def build_field(
     fast : bool
         Terminal app path: about 100 x 60 nodes, ordinary kriging (for ``auto``), cheap
         variogram fit, moving neighbourhood, no method comparison.
+    heights_m : array_like, shape (n,), optional
+        Each reading's meter height above the floor, metres (NaN: unknown); used by
+        ``physics``.
+    seeds : tuple of SourceSeed, optional
+        The site's assets as candidate charged objects (``physics``).
+    height_m : float, optional
+        Predict the field at this height above the floor instead of the meter's, metres;
+        only the ``physics`` method can (the others know nothing of height).
 
     Returns
     -------
@@ -299,6 +328,18 @@ def build_field(
         )
     if neighbors is not None and (isinstance(neighbors, bool) or int(neighbors) < 3):
         raise MapperError(f"neighbors must be an integer >= 3, got {neighbors!r}", where=_WHERE)
+    if height_m is not None:
+        height_m = checks.positive(height_m, "prediction height height_m (metres above the floor)", _WHERE)
+        if method not in ("physics", "auto"):
+            raise MapperError(
+                f"a field at another height needs the physical model (method physics); method {method} "
+                "interpolates at the meter's height only", where=_WHERE)
+        if fast:
+            raise MapperError("the fast path cannot predict at another height", where=_WHERE)
+    if heights_m is not None:
+        heights_m = np.asarray(heights_m, dtype=float)
+        if heights_m.shape != z.shape:
+            raise MapperError(f"heights_m must have one value per reading ({z.shape[0]}), got shape {heights_m.shape}", where=_WHERE)
     merged = merge_repeats(xy, z)
     n = merged.xy.shape[0]
     bounds = tuple(float(b) for b in outline.bounds)
@@ -325,8 +366,12 @@ def build_field(
         )
     spacing = data_spacing(merged.xy)
 
-    if method == "auto":
+    if method == "auto" and height_m is not None:
+        kinds = ["physics"]
+    elif method == "auto":
         kinds = ["kriging"] if fast else ["kriging", "universal", "rbf", "idw"]
+        if not fast and n >= PHYSICS_MIN_POSITIONS:
+            kinds.append("physics")
     else:
         kinds = [method]
     notes: list[str] = []
@@ -338,10 +383,14 @@ def build_field(
             elif kind == "rbf":
                 nb = neighbors if neighbors is not None else (None if n <= 1000 else 64)
                 est, params = RBF(neighbors=nb), {"kernel": "thin_plate_spline", "neighbors": nb}
+            elif kind == "physics":
+                est = PhysicalModel(seeds or (), bounds=bounds).fit(xy, z, heights_m)
+                params = {"physics": est.describe()}
             else:
                 nb = neighbors if neighbors is not None else 16
                 est, params = IDW(neighbors=nb), {"power": 2.0, "neighbors": nb}
-            est.fit(xy, z)
+            if kind != "physics":
+                est.fit(xy, z)
         except MapperError as exc:
             if method != "auto":
                 raise
@@ -392,8 +441,16 @@ def build_field(
         reason += "; " + "; ".join(notes)
 
     est, params = candidates[chosen]
-    e, s = est.predict(targets)
     params = dict(params)
+    if chosen == "physics":
+        e, s = est.predict(targets, height_m)
+        params["prediction_height_m"] = est.height_m_ if height_m is None else height_m
+        if "physics" in loo:
+            params["loo_split"] = _loo_split(est, at, *loo["physics"])
+        if height_m is not None:
+            reason += f"; field predicted at {height_m:g} m above the floor (readings at {est.height_m_:g} m)"
+    else:
+        e, s = est.predict(targets)
     if chosen in NO_STD_METHODS:
         ref = _reference_kriging(candidates, kinds, xy, z, merged, variogram, neighbors, targets.shape[0],
                                  cell, spacing, fast, at, loo)

@@ -39,6 +39,12 @@ def field_inputs(readings: Sequence[CorrectedReading]) -> tuple[np.ndarray, np.n
     return xy, values
 
 
+def field_heights(readings: Sequence[CorrectedReading]) -> np.ndarray:
+    """Meter heights (n,) in metres of the usable readings, NaN where a reading has none."""
+    kept = usable(readings)
+    return np.array([np.nan if r.reading.height_m is None else r.reading.height_m for r in kept], dtype=float)
+
+
 def distinct_positions(xy: np.ndarray) -> int:
     """Number of distinct positions among (n, 2) coordinates in metres (to :data:`SAME_POSITION_M`)."""
     xy = np.asarray(xy, dtype=float).reshape(-1, 2)

@@ -153,6 +153,39 @@ def field_z(sources: Iterable[Source], x, y, z) -> np.ndarray:
     return flat.reshape(x.shape)
 
 
+def unit_kernel(sx, sy, sh, w, x, y, z) -> np.ndarray:
+    """Vertical field at observers of weighted unit charges over a grounded plane, V/m per C.
+
+    ``sum_n w_n k [(z - h_n) / R1^3 - (z + h_n) / R2^3]`` for each observer: the charge at height
+    ``h_n`` and its image at ``-h_n`` (Griffiths, Introduction to Electrodynamics, sec. 3.2.1).
+
+    Parameters
+    ----------
+    sx, sy, sh : ndarray, shape (k,)
+        Quadrature nodes of the source: position over the floor and height, metres.
+    w : ndarray, shape (k,)
+        Node weights (a share of the source's total charge, dimensionless).
+    x, y, z : ndarray, shape (m,)
+        Observers: position and height above the floor, metres.
+
+    Returns
+    -------
+    ndarray, shape (m,)
+        E_z per coulomb of total charge, V/m/C, positive upward.
+    """
+    out = np.empty(x.shape[0])
+    step = max(1, 2**20 // max(sx.shape[0], 1))
+    for start in range(0, x.shape[0], step):
+        sl = slice(start, start + step)
+        dx = x[sl, None] - sx[None, :]
+        dy = y[sl, None] - sy[None, :]
+        r2 = dx * dx + dy * dy
+        above = z[sl, None] - sh[None, :]
+        below = z[sl, None] + sh[None, :]
+        out[sl] = (above / (r2 + above * above) ** 1.5 - below / (r2 + below * below) ** 1.5) @ w
+    return _K * out
+
+
 def induced_surface_charge(q: float, h: float, r) -> np.ndarray:
     """Closed-form induced surface charge density on the grounded plane, C/m².
 

@@ -31,6 +31,9 @@ class Asset:
         Whether ESD-sensitive items are handled there (keep-away checks apply).
     walkable : bool
         Whether planned points may fall inside it (polygons only).
+    height_m : float or None
+        Height above the floor of where it may carry charge (a belt, a film carriage), metres;
+        None when unknown (the physical field model then fits it within bounds).
     """
 
     name: str
@@ -38,6 +41,7 @@ class Asset:
     geometry: BaseGeometry
     sensitive: bool = False
     walkable: bool = True
+    height_m: float | None = None
 
 
 @dataclass(frozen=True)
@@ -137,6 +141,7 @@ class Site:
                     "wkt": a.geometry.wkt,
                     "sensitive": a.sensitive,
                     "walkable": a.walkable,
+                    "height_m": a.height_m,
                 }
                 for a in self.assets
             ],
@@ -158,7 +163,8 @@ class Site:
             name=data["name"],
             outline=shapely.from_wkt(data["outline"]),
             assets=tuple(
-                Asset(a["name"], a["kind"], shapely.from_wkt(a["wkt"]), a["sensitive"], a["walkable"])
+                Asset(a["name"], a["kind"], shapely.from_wkt(a["wkt"]), a["sensitive"], a["walkable"],
+                      a.get("height_m"))
                 for a in data["assets"]
             ),
             zones=tuple(

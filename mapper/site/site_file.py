@@ -5,6 +5,7 @@ The TOML format is documented in ``docs/site-file.md``.
 
 from __future__ import annotations
 
+import dataclasses
 import re
 import tomllib
 from collections.abc import Mapping
@@ -165,6 +166,7 @@ def site_from_toml_text(text: str, source: str = "<site>") -> Site:
                 geometry=geom,
                 sensitive=_flag(item, "sensitive", kind in SENSITIVE_KINDS, _where(source, text, "asset", i, "sensitive")),
                 walkable=_flag(item, "walkable", kind not in BLOCKING_KINDS, _where(source, text, "asset", i, "walkable")),
+                height_m=_height(item, factor, _where(source, text, "asset", i, "height_m")),
             )
         )
     zones = []
@@ -302,6 +304,7 @@ def site_from_vector_file(path: Path, roles: Mapping[str, str], factor: float = 
                         name, role, geom,
                         _flag(row, "sensitive", role in SENSITIVE_KINDS, where, words=True),
                         _flag(row, "walkable", role not in BLOCKING_KINDS, where, words=True),
+                        _height(row, 1.0, where),
                     )
                 )
     if not outline_parts:
@@ -317,25 +320,48 @@ def site_from_vector_file(path: Path, roles: Mapping[str, str], factor: float = 
             target = utm_crs_for(c.x, c.y)
             frames_crs = target
             outline = _project(outline, crs, target)
-            assets = [Asset(a.name, a.kind, _project(a.geometry, crs, target), a.sensitive, a.walkable) for a in assets]
+            assets = [dataclasses.replace(a, geometry=_project(a.geometry, crs, target)) for a in assets]
             zones = [Zone(z.name, _project(z.geometry, crs, target), z.limit_v_per_m, z.kind) for z in zones]
         else:
             frames_crs = crs.to_string()
         minx, miny = outline.bounds[:2]
         ox, oy = float(np.floor(minx)), float(np.floor(miny))  # whole metres: site x, y start near 0
         outline = affinity.translate(outline, -ox, -oy)
-        assets = [Asset(a.name, a.kind, affinity.translate(a.geometry, -ox, -oy), a.sensitive, a.walkable) for a in assets]
+        assets = [dataclasses.replace(a, geometry=affinity.translate(a.geometry, -ox, -oy)) for a in assets]
         zones = [Zone(z.name, affinity.translate(z.geometry, -ox, -oy), z.limit_v_per_m, z.kind) for z in zones]
         georef = Georef(crs=frames_crs, a=1.0, b=0.0, tx=ox, ty=oy, residuals_m=())
     elif factor != 1.0:
         outline = _scale(outline, factor)
-        assets = [Asset(a.name, a.kind, _scale(a.geometry, factor), a.sensitive, a.walkable) for a in assets]
+        assets = [dataclasses.replace(a, geometry=_scale(a.geometry, factor)) for a in assets]
         zones = [Zone(z.name, _scale(z.geometry, factor), z.limit_v_per_m, z.kind) for z in zones]
     name = path.stem.replace("_", " ")
     return _finish(name, outline, assets, zones, [], georef.crs if georef else None, str(path), georef)
 
 
 _FLAG_WORDS = {"true": True, "false": False, "yes": True, "no": False, "1": True, "0": False}
+
+
+#: Highest asset height accepted, metres (a tall hall's roof; our own choice).
+MAX_ASSET_HEIGHT_M = 50.0
+
+
+def _height(item, factor: float, where: str) -> float | None:
+    """An asset's optional ``height_m`` above the floor, metres (a number; never scaled by
+    ``units``, it is always in metres)."""
+    value = item.get("height_m") if hasattr(item, "get") else None
+    if value is None or (isinstance(value, float) and np.isnan(value)) or (isinstance(value, str) and not value.strip()):
+        return None
+    if isinstance(value, str):
+        try:
+            value = float(value.strip().replace(",", "."))
+        except ValueError:
+            raise MapperError(f"'height_m' must be a number of metres, got {value!r}", where=where) from None
+    if isinstance(value, bool) or not isinstance(value, int | float | np.integer | np.floating):
+        raise MapperError(f"'height_m' must be a number of metres, got {value!r}", where=where)
+    h = float(value)
+    if not np.isfinite(h) or not 0 < h <= MAX_ASSET_HEIGHT_M:
+        raise MapperError(f"'height_m' must be above the floor and at most {MAX_ASSET_HEIGHT_M:g} m, got {value!r}", where=where)
+    return h
 
 
 def _flag(item, key: str, default: bool, where: str, words: bool = False) -> bool:

@@ -22,7 +22,7 @@ def test_auto_grid_inside_outline_only(scattered):
     expect_in = shapely.contains_xy(L_SHAPE, mx, my)
     np.testing.assert_array_equal(g.inside, expect_in)
     assert np.isnan(g.estimate[~expect_in]).all()
-    assert {c.method for c in g.cv_table} == {"kriging", "universal", "rbf", "idw"}
+    assert {c.method for c in g.cv_table} == {"kriging", "universal", "rbf", "idw", "physics"}
     assert g.method in g.reason and "RMSE" in g.reason
     assert g.cv is not None and g.cv.method == g.method
     json.dumps(g.params)  # JSON-ready

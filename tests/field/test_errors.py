@@ -62,7 +62,7 @@ def test_collinear_points_for_plane_methods():
 
 
 def test_bad_options():
-    with pytest.raises(MapperError, match="accepted: auto, kriging, universal, rbf, idw"):
+    with pytest.raises(MapperError, match="accepted: auto, kriging, universal, rbf, idw, physics"):
         build_field([[0, 0], [1, 1]], [1, 2], shapely.box(0, 0, 1, 1), method="spline")
     with pytest.raises(MapperError, match="drift.*accepted: linear"):
         UniversalKriging(VG, drift="quadratic")
