@@ -24,6 +24,9 @@ def register(sub) -> None:
     p.add_argument("--method", choices=METHODS, default=None,
                    help="interpolation method; given, the field model is rebuilt (default: the stored "
                    "model, or auto)")
+    p.add_argument("--height", type=positive_float, default=None, metavar="METRES",
+                   help="map the field at this height above the floor, e.g. a work surface (physical "
+                   "model only; the field model is rebuilt)")
     p.add_argument("--cell", type=positive_float, default=None, metavar="METRES",
                    help="grid cell in metres; given, the field model is rebuilt")
     p.add_argument("--csv", default=None, metavar="FILE", help="also write the corrected readings as CSV")
@@ -45,7 +48,7 @@ def run(args) -> int:
     if args.csv is not None:
         check_output(args.csv, ".csv")
     with Survey.open(args.survey) as survey:
-        products = survey_products(survey, args.threshold, args.method, args.cell)
+        products = survey_products(survey, args.threshold, args.method, args.cell, height_m=args.height)
     print_notes(products)
     from mapper.export.bundle import export_products  # geopandas, rasterio: load when writing
 

@@ -19,6 +19,9 @@ def register(sub) -> None:
                    help="action level with unit, e.g. 1kV/m (default: the survey's own)")
     p.add_argument("--method", choices=METHODS, default=None,
                    help="interpolation method; given, the field model is rebuilt")
+    p.add_argument("--height", type=positive_float, default=None, metavar="METRES",
+                   help="map the field at this height above the floor, e.g. a work surface (physical "
+                   "model only; the field model is rebuilt)")
     p.add_argument("--cell", type=positive_float, default=None, metavar="METRES",
                    help="grid cell in metres; given, the field model is rebuilt")
     p.add_argument("--png", nargs="?", const="", default=None, metavar="FILE",
@@ -31,7 +34,7 @@ def run(args) -> int:
     if args.png:
         check_output(args.png, ".png")
     with Survey.open(args.survey) as survey:
-        products = survey_products(survey, args.threshold, args.method, args.cell)
+        products = survey_products(survey, args.threshold, args.method, args.cell, height_m=args.height)
     print_notes(products)
     png = None if args.png is None else (Path(args.png) if args.png else Path(args.out).with_suffix(".png"))
     from mapper.export.report import write_report  # matplotlib: load only when drawing

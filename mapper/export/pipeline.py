@@ -230,7 +230,7 @@ def _field_model(
         grid = build_field(xy, values, outline, method=build_method, cell_m=cell_m, heights_m=heights_m,
                            seeds=seeds_from_site(survey.site), height_m=height_m)
     except MapperError as exc:
-        if cell_m is not None:  # the user's own --cell: say so instead of exporting without a map
+        if cell_m is not None or height_m is not None:  # the user's own --cell or --height: say so
             raise
         return _FieldModel(remarks=tuple(remarks), reason=f"no field model could be built: {exc.message}")
     remarks.append(f"{FIELD_NOTE_PREFIX} built now ({grid.reason})")

@@ -518,8 +518,8 @@ def draw_findings_page(fig: Figure, products: Products) -> None:
                      color="#444444")
             if g.params.get("std_scale") is not None:
                 col.para(f"† {g.method} gives no standard deviation of its own: the map's is the ordinary "
-                         f"kriging standard deviation scaled by {g.params['std_scale']:.3g} so that its RMS z is "
-                         "1 by construction; mean z and the share of |z| <= 1.96 remain the checks.", 6.8,
+                         f"kriging standard deviation scaled locally (site-wide factor {g.params['std_scale']:.3g}, "
+                         "set near each place by the nearby leave-one-out errors) so that its RMS z is 1 by construction; mean z and the share of |z| <= 1.96 remain the checks.", 6.8,
                          color="#444444")
 
     # Right: the standard deviation map.

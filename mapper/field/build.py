@@ -20,7 +20,7 @@ from mapper.field.physical import MIN_POSITIONS as PHYSICS_MIN_POSITIONS
 from mapper.field.physical import PhysicalModel, SourceSeed
 from mapper.field.rbf import RBF, _cv_subset
 from mapper.field.repeats import merge_repeats
-from mapper.field.uncertainty import calibrate_std
+from mapper.field.uncertainty import LOCAL_NEIGHBOURS, LOCAL_PRIOR, calibrate_std, local_scale
 from mapper.field.variogram import Variogram
 from mapper.nice import nice_ceiling
 
@@ -190,7 +190,7 @@ def _reference_kriging(candidates, kinds, xy, z, merged, variogram, neighbors, n
         return f"ordinary kriging could not be fitted ({exc.message})"
 
 
-def _calibrated_std(chosen, ref, chosen_loo, chosen_cv, targets):
+def _calibrated_std(chosen, ref, chosen_loo, chosen_cv, targets, at_xy):
     """Kriging std scaled to the chosen method's leave-one-out errors (see :mod:`.uncertainty`).
 
     Returns the std at ``targets`` (NaN when no calibration is possible), the parameters to
@@ -211,11 +211,24 @@ def _calibrated_std(chosen, ref, chosen_loo, chosen_cv, targets):
         note = cal.note
         if cal.ok:
             _, ks = kr.predict(targets)
+            # Local level: the scale near each node from the nearby leave-one-out errors, then
+            # one factor c so that the standardised errors have RMS 1 again (by construction).
+            e, sd = np.asarray(chosen_loo[0], float), np.asarray(loo_std, float)
+            ok = np.isfinite(e) & np.isfinite(sd) & (sd > 0)
+            u = e[ok] / sd[ok]
+            l_at = local_scale(at_xy[ok], u, at_xy[ok], cal.scale, leave_self_out=True)
+            zl = u / l_at
+            c = float(np.sqrt(np.mean(zl**2)))
+            zl = zl / c
+            local = c * local_scale(at_xy[ok], u, targets, cal.scale)
+            cal = dataclasses.replace(cal, mean_standardized=float(np.mean(zl)), rms_standardized=1.0,
+                                      within_95=float(np.mean(np.abs(zl) <= 1.959963984540054)))
             source = (
                 f"ordinary kriging standard deviation scaled by s = {cal.scale:.3g} so that {chosen}'s "
                 f"leave-one-out standardized errors have RMS 1 (by construction, over {cal.n} positions; "
                 f"their mean is {cal.mean_standardized:+.3f} and {cal.within_95:.0%} lie within +-1.96, "
-                "about 0 and 95 % when the uncertainty is honest)"
+                "about 0 and 95 % when the uncertainty is honest), set locally from the nearest "
+                f"{LOCAL_NEIGHBOURS} leave-one-out errors (factor {float(local.min()):.2g}-{float(local.max()):.2g})"
             )
             extra = {
                 "std_source": source,
@@ -236,10 +249,12 @@ def _calibrated_std(chosen, ref, chosen_loo, chosen_cv, targets):
             if chosen_cv is not None:
                 cv = dataclasses.replace(chosen_cv, mean_standardized=cal.mean_standardized,
                                          rms_standardized=cal.rms_standardized)
-            text = (f"standard deviation from calibrated kriging: ordinary kriging's scaled by "
-                    f"s = {cal.scale:.3g} so that {chosen}'s standardised leave-one-out errors have "
-                    "RMS 1 (by construction)")
-            return cal.scale * ks, extra, cv, text
+            text = (f"standard deviation from calibrated kriging: ordinary kriging's scaled locally "
+                    f"(site-wide s = {cal.scale:.3g}, from the nearest {LOCAL_NEIGHBOURS} leave-one-out errors) "
+                    f"so that {chosen}'s standardised leave-one-out errors have RMS 1 (by construction)")
+            extra["std_local"] = {"neighbours": LOCAL_NEIGHBOURS, "prior": LOCAL_PRIOR, "c": c,
+                                  "min": float(local.min()), "max": float(local.max())}
+            return local * ks, extra, cv, text
     extra = {"std_source": f"none: {note}", "std_scale": None}
     return nan, extra, None, f"no standard deviation: {note}"
 
@@ -454,7 +469,8 @@ def build_field(
     if chosen in NO_STD_METHODS:
         ref = _reference_kriging(candidates, kinds, xy, z, merged, variogram, neighbors, targets.shape[0],
                                  cell, spacing, fast, at, loo)
-        s, extra, cv_chosen, text = _calibrated_std(chosen, ref, loo.get(chosen), by_kind.get(chosen), targets)
+        s, extra, cv_chosen, text = _calibrated_std(chosen, ref, loo.get(chosen), by_kind.get(chosen), targets,
+                                                    merged.xy[at])
         params.update(extra)
         reason += "; " + text
         if cv_chosen is not None:

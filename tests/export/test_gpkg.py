@@ -17,8 +17,10 @@ from mapper.export.crs import transform_all
 from mapper.export.metadata import METADATA_TABLE
 from mapper.export.styles import band_colors, ramp_color
 
+# The sample hall's field model is the physical one (it wins auto's cross-validation), so its
+# export also holds the source inventory.
 SPATIAL = ("readings", "site", "zones", "assets", "contours", "bands", "hotspots", "probable_exceedance",
-           "violations", "advice")
+           "violations", "advice", "sources")
 
 
 @pytest.fixture(scope="module")
@@ -175,3 +177,18 @@ def test_ramp_is_diverging_and_symmetric_in_lightness():
     assert lightness(ramp_color(0.0)) > lightness(ramp_color(0.5)) > lightness(ramp_color(1.0))
     assert lightness(ramp_color(0.0)) > lightness(ramp_color(-0.5)) > lightness(ramp_color(-1.0))
     assert ramp_color(-2) == ramp_color(-1)
+
+
+def test_sources_layer_has_the_inventory_columns(hall):
+    import geopandas as gpd
+
+    frame = gpd.read_file(hall["result"].gpkg.path, layer="sources")
+    # Column names fixed by the issue that asked for the layer (other tools rely on them).
+    for col in ("source_id", "kind", "asset", "charge_c", "charge_std_c", "height_m", "peak_v_per_m", "status"):
+        assert col in frame.columns
+    assert list(frame["source_id"]) == [f"S{k}" for k in range(1, len(frame) + 1)]
+    assert set(frame.geometry.geom_type) <= {"Point", "LineString", "Polygon", "MultiLineString", "MultiPolygon"}
+    # belt 1 is in the sample's inventory, as a line along the asset (sample_sites/generate.py).
+    belt = frame[frame["asset"] == "belt 1"]
+    assert len(belt) == 1 and belt.geometry.iloc[0].geom_type == "LineString"
+    assert (frame["charge_std_c"] >= 0).all()

@@ -26,9 +26,12 @@ def _flat(text: str) -> str:
 
 
 def test_pages_and_sections(report):
-    assert len(report["doc"]) == report["result"].pages == 2
-    page1, page2 = (_flat(t) for t in report["texts"])
+    # The sample hall's field model is the physical one, so a third page lists its sources.
+    assert len(report["doc"]) == report["result"].pages == 3
+    page1, page2, page3 = (_flat(t) for t in report["texts"])
     p = report["products"]
+    assert "likely charged objects" in page3 and "belt 1" in page3
+    assert "What the survey cannot tell" in page3
     assert "electrostatic field map" in page1
     assert f"field estimate ({p.display_unit})" in page1  # labelled colour bar in the display unit
     assert "action level" in page1 and "N" in page1  # north arrow: the sample is georeferenced

@@ -7,7 +7,7 @@ from scipy.interpolate import RBFInterpolator
 
 from mapper.field import OrdinaryKriging, Variogram, build_field
 from mapper.field import build as build_module
-from mapper.field.uncertainty import MIN_CALIBRATION_POINTS, calibrate_std
+from mapper.field.uncertainty import MIN_CALIBRATION_POINTS, calibrate_std, local_scale
 
 BOX = shapely.box(0, 0, 50, 30)
 L_SHAPE = shapely.Polygon([(0, 0), (50, 0), (50, 15), (25, 15), (25, 30), (0, 30)])
@@ -59,13 +59,20 @@ def test_calibrated_rbf_std_on_a_simulated_field():
     zs = np.array(brute) / (s * sd_loo)
     assert np.sqrt(np.mean(zs**2)) == pytest.approx(1.0, rel=1e-6)
     assert g.cv.rms_standardized == pytest.approx(1.0, rel=1e-12)  # the same, from the closed form
-    assert g.cv.mean_standardized == pytest.approx(np.mean(zs), abs=1e-6)
+    # The map's level is set locally (mapper.field.uncertainty.local_scale, leave-self-out at the
+    # readings), then one factor restores RMS 1: the mean is that of the locally scaled errors.
+    u = np.array(brute) / sd_loo
+    zl = u / local_scale(xy, u, xy, s, leave_self_out=True)
+    c = np.sqrt(np.mean(zl**2))
+    zl /= c
+    assert g.cv.mean_standardized == pytest.approx(np.mean(zl), abs=1e-6)
     assert g.params["std_calibration"]["n"] == len(z)
 
-    # The grid std is the kriging std times s (same factorisation: rounding only, 1e-10).
+    # The grid std is the kriging std times the local scale (same factorisation: rounding only).
     mx, my = np.meshgrid(g.x, g.y)
-    _, sd_grid = kr.predict(np.column_stack([mx[g.inside], my[g.inside]]))
-    np.testing.assert_allclose(g.std[g.inside], s * sd_grid, rtol=1e-10)
+    nodes = np.column_stack([mx[g.inside], my[g.inside]])
+    _, sd_grid = kr.predict(nodes)
+    np.testing.assert_allclose(g.std[g.inside], c * local_scale(xy, u, nodes, s) * sd_grid, rtol=1e-9)
 
     # Against normal theory (outside the construction): with 150 points the share of
     # standardized errors within +-1.96 has a binomial standard error of 1.8 %; 0.89..0.99 is
