@@ -62,6 +62,9 @@ def variogram_from_args(args) -> Variogram | None:
 def run(args) -> int:
     variogram = variogram_from_args(args)
     method = args.method
+    if args.height is not None and method not in ("auto", "physics"):
+        raise MapperError(f"--height needs the physical model (--method physics); method {method} "
+                          "interpolates at the meter's height only")
     if variogram is not None and method == "auto":
         method = "kriging"
     with Survey.open(args.survey, write=True) as survey:

@@ -66,11 +66,11 @@ INITIAL_SHARE = 0.05
 #: Fewest distinct positions for a source search: the background plane and one source.
 MIN_POSITIONS = 8
 #: Most lattice candidates tried at each step (coarser lattice on large sites; our own choice).
-MAX_LATTICE = 1500
-#: Quadrature node spacing along lines and across patches, metres: a third of the smallest
-#: source-to-meter distance the height bounds allow (Gauss-Legendre is then accurate to well
-#: below a meter's resolution; checked against the closed form in the tests).
-NODE_SPACING_M = HEIGHT_GAP_M / 3.0
+MAX_LATTICE = 800
+#: Gauss-Legendre nodes along lines and across patches are spaced at half the smallest
+#: source-to-meter distance the height bounds allow, at most this many per patch side (a line
+#: gets four times as many); checked against the closed form in the tests.
+MAX_NODES_PER_SIDE = 24
 
 
 @dataclass(frozen=True)
@@ -178,7 +178,7 @@ def _bands(z0: float, gap: float = HEIGHT_GAP_M) -> list[tuple[float, float]]:
     return out
 
 
-def _line_nodes(geom) -> tuple[np.ndarray, np.ndarray]:
+def _line_nodes(geom, step: float) -> tuple[np.ndarray, np.ndarray]:
     parts = geom.geoms if hasattr(geom, "geoms") else [geom]
     xs, ws = [], []
     for part in parts:
@@ -187,7 +187,7 @@ def _line_nodes(geom) -> tuple[np.ndarray, np.ndarray]:
             length = float(np.hypot(*(b - a)))
             if length <= 0:
                 continue
-            k = max(4, math.ceil(length / NODE_SPACING_M))
+            k = min(MAX_NODES_PER_SIDE * 4, max(4, math.ceil(length / step)))
             t, w = np.polynomial.legendre.leggauss(k)
             s = (t + 1) / 2
             xs.append(a[None, :] + s[:, None] * (b - a)[None, :])
@@ -196,12 +196,13 @@ def _line_nodes(geom) -> tuple[np.ndarray, np.ndarray]:
     return xy, w / w.sum()
 
 
-def _patch_nodes(poly) -> tuple[np.ndarray, np.ndarray]:
+def _patch_nodes(poly, step: float) -> tuple[np.ndarray, np.ndarray]:
     rect = poly.minimum_rotated_rectangle
     c = np.asarray(rect.exterior.coords)[:4, :2]
     u, v = c[1] - c[0], c[3] - c[0]
     lu, lv = float(np.hypot(*u)), float(np.hypot(*v))
-    ku, kv = max(4, math.ceil(lu / NODE_SPACING_M)), max(4, math.ceil(lv / NODE_SPACING_M))
+    ku = min(MAX_NODES_PER_SIDE, max(4, math.ceil(lu / step)))
+    kv = min(MAX_NODES_PER_SIDE, max(4, math.ceil(lv / step)))
     tu, wu = np.polynomial.legendre.leggauss(ku)
     tv, wv = np.polynomial.legendre.leggauss(kv)
     su, sv = (tu + 1) / 2, (tv + 1) / 2
@@ -221,11 +222,11 @@ def _seed_shapes(seed: SourceSeed, z0: float, gap: float) -> list[_Shape]:
         p = g.centroid
         kind, xy, w = "point", np.array([[p.x, p.y]]), np.array([1.0])
     elif g.geom_type in ("LineString", "MultiLineString", "LinearRing"):
-        kind, (xy, w) = "line", _line_nodes(g)
+        kind, (xy, w) = "line", _line_nodes(g, gap / 2)
     elif g.geom_type in ("Polygon", "MultiPolygon") and g.area > 0:
         kind = "patch"
         poly = max(g.geoms, key=lambda p: p.area) if g.geom_type == "MultiPolygon" else g
-        xy, w = _patch_nodes(poly)
+        xy, w = _patch_nodes(poly, gap / 2)
     else:
         return []
     if seed.height_m is not None:
@@ -354,7 +355,7 @@ class PhysicalModel:
                         + (INITIAL_SHARE * self.values_) ** 2)
         shapes: list[_Shape] = []
         for _ in range(2):
-            shapes = self._select(sigma)
+            shapes = self._select(sigma, shapes)
             m_src = self._source_field(shapes, x, y, z)
             r = self.values_ - self._predict_mean(shapes, self._beta(shapes, sigma), x, y, z)
             a2, rho2 = _error_model(r, m_src, floor)
@@ -412,17 +413,37 @@ class PhysicalModel:
                 out[k] = shapes[k].with_theta(th[cuts[j]:cuts[j + 1]])
             return out
 
-        def resid(th):
+        def solve(th):
             g = [shapes[k].column(th[cuts[j]:cuts[j + 1]], x, y, z) for j, k in enumerate(free)]
             a = np.column_stack([base, *g]) if g else base
             a[:, base.shape[1]:] /= sigma[:, None]
             col = np.linalg.norm(a, axis=0)
             col[col == 0] = 1.0
             coef, *_ = np.linalg.lstsq(a / col, target, rcond=None)
-            return target - (a / col) @ coef
+            return a / col, coef, coef / col, g
 
-        sol = least_squares(resid, th0, bounds=(lo, hi), x_scale="jac", max_nfev=budget * len(th0),
-                            diff_step=1e-6)
+        def resid(th):
+            a, coef, _, _ = solve(th)
+            return target - a @ coef
+
+        def jac(th):
+            # Kaufman's approximation of the variable-projection Jacobian: -(I - P) dA/dtheta beta,
+            # with P the projection on the design's columns (Golub & Pereyra 2003, sec. 3).
+            a, _, coef, g = solve(th)
+            q, _ = np.linalg.qr(a)
+            out = np.empty((x.shape[0], th.shape[0]))
+            for j, k in enumerate(free):
+                part = th[cuts[j]:cuts[j + 1]]
+                qk = coef[base.shape[1] + j]
+                for i in range(part.shape[0]):
+                    step = 1e-6 * max(1.0, abs(part[i]))
+                    t2 = part.copy()
+                    t2[i] = min(t2[i] + step, shapes[k].hi[i]) if t2[i] + step <= shapes[k].hi[i] else t2[i] - step
+                    d = (shapes[k].column(t2, x, y, z) - g[j]) / (t2[i] - part[i]) * qk / sigma
+                    out[:, cuts[j] + i] = -(d - q @ (q.T @ d))
+            return out
+
+        sol = least_squares(resid, th0, jac=jac, bounds=(lo, hi), x_scale="jac", max_nfev=budget * len(th0))
         return split(sol.x)
 
     def _score(self, shapes, sigma) -> float:
@@ -435,10 +456,11 @@ class PhysicalModel:
         p = 3 + sum(1 + s.size for s in shapes)
         return n * math.log(max(rss, 1e-300) / n) + p * math.log(n)
 
-    def _select(self, sigma) -> list[_Shape]:
+    def _select(self, sigma, start=()) -> list[_Shape]:
+        """Greedy forward selection from ``start`` (refined first under the new weights)."""
         n = self.values_.shape[0]
-        shapes: list[_Shape] = []
-        used_assets: set[str] = set()
+        shapes: list[_Shape] = self._refine(list(start), sigma, budget=10) if start else []
+        used_assets: set[str] = {sh.asset for sh in shapes if sh.asset is not None}
         best = self._score(shapes, sigma)
         cap = min(self.max_sources, max(0, (n - 3) // READINGS_PER_SOURCE // 2))
         while len(shapes) < cap and self._gc.shape[1]:
@@ -461,7 +483,7 @@ class PhysicalModel:
             if score >= best - 2.0:  # BIC must drop by more than 2 ("positive" evidence, Kass & Raftery 1995)
                 break
             if len(trial) > 1:
-                trial = self._refine(trial, sigma, budget=15)
+                trial = self._refine(trial, sigma, budget=10)
                 score = min(score, self._score(trial, sigma))
             shapes, best = trial, score
             if self._cands[k].asset is not None:
@@ -500,21 +522,20 @@ class PhysicalModel:
     def _theta(self) -> np.ndarray:
         return np.concatenate([s.theta0 for s in self.shapes_]) if self.shapes_ else np.zeros(0)
 
-    def _model_at(self, th, x, y, z, beta=None):
-        sizes = np.cumsum([0, *[s.size for s in self.shapes_]])
-        sh = [s.with_theta(th[sizes[k]:sizes[k + 1]]) for k, s in enumerate(self.shapes_)]
-        return self._design(sh, x, y, z) @ (self.beta_ if beta is None else beta)
-
     def _jacobian(self, x, y, z) -> np.ndarray:
-        """d model / d (theta, beta) at the given observers (forward differences in theta)."""
-        th = self._theta()
-        base = self._model_at(th, x, y, z)
+        """d model / d (theta, beta) at the given observers (forward differences in theta, one
+        source at a time: only that source's column changes)."""
         cols = []
-        for k in range(th.shape[0]):
-            step = 1e-5 * max(1.0, abs(th[k]))
-            t2 = th.copy()
-            t2[k] += step
-            cols.append((self._model_at(t2, x, y, z) - base) / step)
+        for k, sh in enumerate(self.shapes_):
+            if not sh.size:
+                continue
+            q = self.beta_[3 + k]
+            base = sh.column(sh.theta0, x, y, z)
+            for j in range(sh.size):
+                step = 1e-5 * max(1.0, abs(sh.theta0[j]))
+                t2 = sh.theta0.copy()
+                t2[j] += step
+                cols.append(q * (sh.column(t2, x, y, z) - base) / step)
         design = self._design(self.shapes_, x, y, z)
         return np.column_stack([*cols, design]) if cols else design
 
