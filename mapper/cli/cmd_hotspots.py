@@ -64,6 +64,8 @@ def _json_default(value):
 
 def _why(s, unit: str) -> str:
     """A suggestion's reason in the display unit."""
+    if s.reason == "source":
+        return s.why
     if s.reason == "decision":
         return f"P = {s.p_exceed:.2f}, standard deviation {fmt(s.std_v_per_m, unit)}"
     return f"{s.gap_m:.1f} m from the nearest reading"

@@ -31,6 +31,7 @@ from shapely.geometry.base import BaseGeometry
 from mapper.errors import MapperError
 from mapper.features._grid import regular_spacing
 from mapper.features.hotspots import check_threshold, exceedance_probability, reading_arrays
+from mapper.features.sources import source_records
 from mapper.field.model import FieldGrid
 from mapper.readings.model import CorrectedReading
 from mapper.site.model import Site
@@ -50,7 +51,8 @@ class Suggestion:
     x, y : float
         Position, site metres (a planned point's position when snapped).
     reason : str
-        ``decision`` (the exceedance is uncertain here) or ``gap`` (far from every reading).
+        ``source`` (beside a physical-model source the readings do not pin down), ``decision``
+        (the exceedance is uncertain here) or ``gap`` (far from every reading).
     why : str
         The reason in words, with numbers.
     estimate_v_per_m : float
@@ -183,6 +185,19 @@ def advise_sampling(
         chosen.append((k, reason))
         np.minimum(taken, np.hypot(ex - ex[k], ey - ey[k]), out=taken)
 
+    # Sources of the physical model that the readings do not pin down: measure beside them first.
+    source_why: dict[int, str] = {}
+    for src in source_records(grid, site):
+        if src["well_determined"] or len(chosen) >= count or ex.size == 0:
+            continue
+        d = shapely.distance(shapely.from_wkt(src["wkt"]), shapely.points(ex, ey))
+        d = np.where(taken >= sep, d, np.inf)
+        k = int(np.argmin(d))
+        if np.isfinite(d[k]):
+            share = abs(src["charge_std_c"] / src["charge_c"]) if src["charge_c"] else float("inf")
+            source_why[k] = (f"beside source {src['source_id']} ({src['asset'] or 'unlisted ' + src['kind']}), "
+                             f"whose charge the readings do not pin down (standard error {share:.0%} of it)")
+            _take(k, "source")
     if p is not None:
         undecided = np.flatnonzero((p >= lo) & (p <= hi) & np.isfinite(es) & (es > 0))
         score = es[undecided] * 4.0 * p[undecided] * (1.0 - p[undecided])
@@ -228,7 +243,9 @@ def advise_sampling(
         s_k = float(es[k]) if np.isfinite(es[k]) else None
         p_k = float(p[k]) if p is not None else None
         g_k = float(gap[k]) if gap is not None else None
-        if reason == "decision":
+        if reason == "source":
+            why = source_why[k]
+        elif reason == "decision":
             why = f"P(|E| >= t) = {p_k:.2f} with standard deviation {s_k:.3g} V/m"
         else:
             why = f"{g_k:.2f} m from the nearest reading (usual spacing {spacing:.2f} m)"

@@ -132,3 +132,25 @@ def test_bad_window_is_refused():
     grid = grid_over(OUTLINE, 0.5, _field, std=100.0)
     with pytest.raises(MapperError, match="probability window"):
         advise_sampling(grid, site(OUTLINE), [], T, p_window=(0.8, 0.2))
+
+
+def test_a_poorly_determined_source_gets_a_reading_beside_it_first():
+    # A flat quiet field with one physical-model source whose charge is known only to +-80 %
+    # (invented inventory row): the first suggestion is the walkable node nearest to it.
+    import shapely as _shapely
+
+    from mapper.features.advice import advise_sampling as _advise
+    from mapper.field.model import FieldGrid as _Grid
+    from mapper.site.model import Site as _Site
+
+    x = np.arange(0.25, 20, 0.5)
+    y = np.arange(0.25, 10, 0.5)
+    est = np.full((y.size, x.size), 50.0)
+    src = {"kind": "point", "asset": None, "status": "unlisted", "charge_c": 1e-8, "charge_std_c": 8e-9,
+           "height_m": 0.3, "height_std_m": 0.2, "peak_v_per_m": 900.0, "position_std_m": 0.5,
+           "wkt": "POINT (13.1 7.2)"}
+    grid = _Grid(x, y, est, np.full(est.shape, 5.0), "physics", {"physics": {"sources": [src]}})
+    site = _Site("flat", _shapely.box(0, 0, 20, 10))
+    out = _advise(grid, site, [], 4921.3)
+    assert out and out[0].reason == "source" and "S1" in out[0].why
+    assert np.hypot(out[0].x - 13.1, out[0].y - 7.2) <= 0.5
