@@ -242,7 +242,8 @@ def main() -> None:
     ap = argparse.ArgumentParser(description=__doc__, formatter_class=argparse.RawDescriptionHelpFormatter)
     ap.add_argument("--full", action="store_true", help="the sizes of the performance targets")
     ap.add_argument("--quick", action="store_true", help="smaller sizes (default)")
-    ap.add_argument("--case", action="append", choices=list(QUICK), help="run only these cases")
+    ap.add_argument("--case", action="append", choices=[*QUICK, "physics"],
+                    help="run only these cases (physics: the physical field model, benchmarks/physics.py)")
     ap.add_argument("--timeout", type=float, default=900.0, help="per engine run, seconds")
     ap.add_argument("--child", action="store_true", help=argparse.SUPPRESS)
     ap.add_argument("--case-name", help=argparse.SUPPRESS)
@@ -255,7 +256,13 @@ def main() -> None:
         child(args)
         return
     sizes = FULL if args.full else QUICK
-    cases = args.case or list(QUICK)
+    cases = args.case or [*QUICK, "physics"]
+    if "physics" in cases:
+        subprocess.run([sys.executable, os.path.join(ROOT, "benchmarks", "physics.py"),
+                        *(["300", "1000", "5000"] if args.full else ["300", "1000"])], check=False)
+        cases = [c for c in cases if c != "physics"]
+        if not cases:
+            return
     print(f"mapper.field benchmark ({'full' if args.full else 'quick'} sizes), "
           f"{os.cpu_count()} CPUs, numpy {np.__version__}")
     with tempfile.TemporaryDirectory() as tmp:
