@@ -15,6 +15,7 @@ import numpy as np
 from mapper.cli.common import fmt, say, table, threshold_arg, warn
 from mapper.export.pipeline import Products, survey_file_products
 from mapper.features import Findings
+from mapper.features.hotspots import MEASURED_NOTE
 
 
 def register(sub) -> None:
@@ -135,10 +136,12 @@ def report_lines(products: Products) -> list[str]:
         out.append(table(hotspot_rows(findings, findings.hotspots, unit), _HOTSPOT_HEADER))
         out.append(
             "status: confirmed = a corrected reading inside reaches the level; suspected = only "
-            "the interpolation says so."
+            "the interpolation says so"
+            + ("; " + MEASURED_NOTE if any(h.status == "measured" for h in findings.hotspots) else "")
+            + "."
         )
     else:
-        out.append(f"No hotspots: the mapped field stays below {findings.threshold_label}.")
+        out.append(f"No hotspots: no reading and no part of the mapped field reaches {findings.threshold_label}.")
     if findings.zone_hotspots:
         out += ["", "Zones with their own limit:"]
         rows = hotspot_rows(findings, findings.zone_hotspots, unit)

@@ -36,6 +36,7 @@ from mapper.export import styles as st
 from mapper.export.pipeline import Products
 from mapper.features import CAUTIONS, LIMITS_ARE_DEFAULTS
 from mapper.features.contours import Levels, nice_levels
+from mapper.features.hotspots import MEASURED_NOTE
 from mapper.features.sources import LIMITATIONS, source_records
 from mapper.survey.store import to_utc_text, utc_now
 from mapper.units import format_field, from_si
@@ -439,8 +440,11 @@ def draw_findings_page(fig: Figure, products: Products) -> None:
                 col.row(row, stops)
             if len(rows) > MAX_HOTSPOT_ROWS:
                 col.para(f"... and {len(rows) - MAX_HOTSPOT_ROWS} more in the GeoPackage's hotspots layer.", 7.5)
+            if any(h.status == "measured" for h in f.hotspots):
+                col.para(MEASURED_NOTE[0].upper() + MEASURED_NOTE[1:] + ".", 7.0, color="#444444")
         else:
-            col.para(f"No region reaches the action level {format_field(p.threshold_v_per_m, unit)}.")
+            col.para(f"No reading and no region of the map reaches the action level "
+                     f"{format_field(p.threshold_v_per_m, unit)}.")
         if f.probable:
             extra = [r for r in f.probable if not r.hotspot_ids]
             col.para(f"{len(f.probable)} region(s) where P(|E| ≥ action level) ≥ 0.5"

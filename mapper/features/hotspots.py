@@ -20,6 +20,7 @@ from dataclasses import dataclass
 
 import numpy as np
 import shapely
+from scipy.spatial import cKDTree
 from scipy.special import ndtr
 from shapely.geometry import Polygon
 from shapely.geometry.base import BaseGeometry
@@ -39,7 +40,14 @@ from mapper.readings.model import CorrectedReading
 from mapper.site.model import Site
 
 POLARITIES = ("positive", "negative")
-STATUSES = ("confirmed", "suspected")
+STATUSES = ("confirmed", "suspected", "measured")
+#: Smallest radius of a measured hotspot around its reading, metres (our own choice: about the
+#: footprint of a person holding a meter).
+MEASURED_MIN_RADIUS_M = 0.25
+#: What the ``measured`` status means, for every output that lists hotspots.
+MEASURED_NOTE = ("measured = a reading reaches the level here while the map between readings stays "
+                 "below it; the hotspot is the reading's own neighbourhood (its cell of the reading "
+                 "layout, within half the distance to the nearest other reading)")
 
 
 @dataclass(frozen=True)
@@ -70,7 +78,9 @@ class Hotspot:
         Reading of largest magnitude among them with this polarity's sign, V/m.
     status : str
         ``confirmed`` when at least one reading inside reaches the level with this polarity,
-        ``suspected`` when only the interpolation says so.
+        ``suspected`` when only the interpolation says so, ``measured`` when a reading reaches
+        the level but the map stays below it there (the hotspot is then the reading's own
+        neighbourhood, see :data:`MEASURED_NOTE`).
     p_exceed_max : float or None
         Largest P(|E| >= t) at the nodes inside; ``None`` when the field model has no
         standard deviation.
@@ -392,9 +402,116 @@ def find_hotspots(
                 zone=zone,
             )
         )
+    _add_measured(found, ids, xyv, t, clip, site, zone, half_cell, xx, yy, p_ext)
     found.sort(key=lambda h: (-abs(h["peak_v_per_m"]), h["peak_x"], h["peak_y"]))
     prefix = f"{zone} H" if zone else "H"
     return tuple(Hotspot(id=f"{prefix}{n}", **h) for n, h in enumerate(found, start=1))
+
+
+def reading_cells(xy: np.ndarray, clip: BaseGeometry) -> list[BaseGeometry]:
+    """Each position's neighbourhood: its Voronoi cell among all positions, within a square of
+    half-side half the distance to the nearest other position (at least
+    :data:`MEASURED_MIN_RADIUS_M`), clipped.
+
+    Parameters
+    ----------
+    xy : ndarray, shape (n, 2)
+        Reading positions, metres.
+    clip : shapely geometry
+        Region the cells are clipped to (the outline, or a zone), metres.
+
+    Returns
+    -------
+    list of shapely geometry
+        One (possibly empty) polygonal geometry per position.
+    """
+    n = xy.shape[0]
+    uniq, inverse = np.unique(np.round(xy, 3), axis=0, return_inverse=True)
+    inverse = inverse.ravel()
+    if uniq.shape[0] >= 2:
+        d, _ = cKDTree(uniq).query(uniq, k=2)
+        radius = np.maximum(d[:, 1] / 2.0, MEASURED_MIN_RADIUS_M)
+    else:
+        radius = np.full(uniq.shape[0], max(MEASURED_MIN_RADIUS_M, 1.0))
+    cells: list[BaseGeometry]
+    if uniq.shape[0] >= 2:
+        pts = shapely.points(uniq)
+        env = shapely.box(*clip.buffer(float(radius.max()) + 1.0).bounds)
+        vor = shapely.voronoi_polygons(shapely.multipoints(pts), extend_to=env, ordered=True)
+        cells = list(vor.geoms)
+        if len(cells) != uniq.shape[0]:  # collinear input: fall back to discs alone
+            cells = [env] * uniq.shape[0]
+    else:
+        cells = [clip]
+    # Clipped to a square of half-side r: on a square layout that is exactly the layout's cell,
+    # so neighbouring cells share an edge.
+    out_u = [polygonal(cells[k].intersection(shapely.box(uniq[k, 0] - radius[k], uniq[k, 1] - radius[k],
+                                                         uniq[k, 0] + radius[k], uniq[k, 1] + radius[k]))
+                       .intersection(clip))
+             for k in range(uniq.shape[0])]
+    return [out_u[inverse[i]] for i in range(n)]
+
+
+def _add_measured(found, ids, xyv, t, clip, site, zone, half_cell, xx, yy, p_ext) -> None:
+    """Make every reading at or beyond +-t part of a hotspot of its polarity (in place).
+
+    A reading the mapped hotspots already hold is left alone. Otherwise its neighbourhood
+    (:func:`reading_cells`) joins a mapped hotspot of the same polarity that it overlaps, or,
+    merged with touching neighbourhoods of other such readings, becomes a hotspot of status
+    ``measured``.
+    """
+    if not len(xyv):
+        return
+    inside_clip = shapely.intersects_xy(clip.buffer(1e-9), xyv[:, 0], xyv[:, 1])
+    cells = None
+    for polarity, sign in (("positive", 1.0), ("negative", -1.0)):
+        exceed = np.flatnonzero(inside_clip & (sign * xyv[:, 2] >= t))
+        held = {rid for h in found if h["polarity"] == polarity for rid in h["reading_ids"]
+                if sign * xyv[ids == rid, 2].max(initial=-np.inf) >= t}
+        todo = [k for k in exceed if int(ids[k]) not in held]
+        if not todo:
+            continue
+        if cells is None:
+            cells = reading_cells(xyv[:, :2], clip)
+        groups: list[tuple[BaseGeometry, list[int]]] = []
+        for k in todo:
+            cell = cells[k]
+            if cell.is_empty:
+                cell = polygonal(shapely.Point(xyv[k, :2]).buffer(MEASURED_MIN_RADIUS_M, 4).intersection(clip))
+            target = next((h for h in found if h["polarity"] == polarity and h["geometry"].intersects(cell)
+                           and h["geometry"].union(cell).geom_type == "Polygon"), None)
+            if target is not None:
+                target["geometry"] = target["geometry"].union(cell)
+                target["area_m2"] = float(target["geometry"].area)
+                target["reading_ids"] = tuple(sorted({*target["reading_ids"], int(ids[k])}))
+                if target["max_reading_v_per_m"] is None or abs(xyv[k, 2]) > abs(target["max_reading_v_per_m"]):
+                    target["max_reading_v_per_m"] = float(xyv[k, 2])
+                target["status"] = "confirmed"
+                continue
+            touching = [g for g in groups if g[0].intersects(cell)]
+            geom = shapely.union_all([cell, *[g[0] for g in touching]])
+            members = [k, *[m for g in touching for m in g[1]]]
+            groups = [g for g in groups if all(g is not x for x in touching)] + [(geom, members)]
+        for geom, members in groups:
+            for poly in polygonal(geom).geoms:
+                mem = [m for m in members if poly.buffer(1e-6).intersects(shapely.Point(xyv[m, :2]))]
+                if not mem:
+                    continue
+                vals = xyv[mem, 2]
+                top = mem[int(np.argmax(sign * vals))]
+                near = poly.buffer(half_cell)
+                all_in = shapely.intersects_xy(near, xyv[:, 0], xyv[:, 1])
+                mask = nodes_in(poly, xx, yy)
+                p_max = float(np.max(p_ext[mask])) if p_ext is not None and mask.any() else None
+                asset, dist = _nearest_asset(site, poly)
+                found.append(dict(
+                    polarity=polarity, geometry=poly, area_m2=float(poly.area), threshold_v_per_m=t,
+                    peak_v_per_m=float(xyv[top, 2]), peak_x=float(xyv[top, 0]), peak_y=float(xyv[top, 1]),
+                    mean_v_per_m=float(np.mean(vals)), reading_ids=tuple(int(v) for v in ids[all_in]),
+                    max_reading_v_per_m=float(xyv[top, 2]), status="measured", p_exceed_max=p_max,
+                    nearest_asset=asset, nearest_asset_m=dist,
+                    zones=tuple(zn.name for zn in site.zones if zn.geometry.intersects(poly)), zone=zone,
+                ))
 
 
 def zone_hotspots(
@@ -522,6 +639,7 @@ def exceedances_outside(
 
 
 __all__ = [
+    "MEASURED_NOTE",
     "POLARITIES",
     "STATUSES",
     "Hotspot",
@@ -531,6 +649,7 @@ __all__ = [
     "exceedances_outside",
     "find_hotspots",
     "probable_exceedance",
+    "reading_cells",
     "signed_regions",
     "zone_hotspots",
 ]
