@@ -517,6 +517,16 @@ def draw_findings_page(fig: Figure, products: Products) -> None:
                          "-" if c.mean_standardized is None else f"{c.mean_standardized:.2f}",
                          "-" if c.rms_standardized is None else
                          f"{c.rms_standardized:.2f}" + (" †" if _calibrated(g, c) else "")], stops)
+            split = g.params.get("loo_split")
+            if split:
+                parts = []
+                for key, label in (("near_sources", "near sources"), ("quiet", "elsewhere")):
+                    st_ = split[key]
+                    if st_["n"] and st_["rms_standardized"] is not None:
+                        parts.append(f"{label} {st_['n']} readings, RMSE {format_field(st_['rmse_v_per_m'], unit, 3)}, "
+                                     f"RMS z {st_['rms_standardized']:.2f}")
+                if parts:
+                    col.para("Physical model, " + "; ".join(parts) + ".", 6.8)
             col.para("Leave-one-out: each reading predicted from the others. z = error / predicted standard "
                      "deviation; mean z near 0 and RMS z near 1 mean the stated uncertainty is honest.", 6.8,
                      color="#444444")

@@ -47,7 +47,7 @@ def _site():
 def _readings():
     pts = [(x, y) for x in np.arange(0.5, 16, 1.5) for y in np.arange(0.5, 10, 1.5)]
     rs = [reading(i, x, y, _field(x, y)) for i, (x, y) in enumerate(pts, start=1)]
-    # A spike the map does not show (e.g. a charged glove passing by): an unmapped exceedance.
+    # A spike the map does not show (e.g. a charged glove passing by): a measured exceedance.
     rs.append(reading(999, 14.5, 9.5, 6000.0))
     return rs
 
@@ -62,8 +62,10 @@ def test_analyse_bundles_everything():
     assert sum(b.area_m2 for b in f.bands) == pytest.approx(OUTLINE.area, rel=1e-9)
     assert len(f.isolines) == len(f.levels.values_v_per_m)
     # The strong charge (30 kV/m) makes a negative hotspot; the weak one peaks at 12 kV/m.
-    assert [h.polarity for h in f.hotspots] == ["negative", "positive"]
+    # The spike of 6 kV/m that the map does not show is a hotspot of its own, status measured.
+    assert [h.polarity for h in f.hotspots] == ["negative", "positive", "positive"]
     assert f.hotspots[0].status == "confirmed"
+    assert f.hotspots[2].status == "measured" and 999 in f.hotspots[2].reading_ids
     assert f.hotspots[1].zones == ("packing EPA",)
     # The EPA's own limit (2 kV/m) gives a larger region inside the zone only.
     (zh,) = f.zone_hotspots
@@ -74,7 +76,7 @@ def test_analyse_bundles_everything():
     assert [(v.rule.key, v.asset, v.distance_m) for v in f.violations] == [
         ("S20.20-2014 8.3.1", "bench A", 0.0)
     ]
-    assert f.unmapped_exceedances == (999,)
+    assert f.unmapped_exceedances == ()  # every reading at or beyond the level is in a hotspot
     assert f.advice and all(1 <= s.rank <= 10 for s in f.advice)
     assert f.cautions == CAUTIONS and "ESD control plan" in f.limits_note
     data = json.loads(json.dumps(f.to_dict()))

@@ -125,3 +125,13 @@ def test_measured_hotspot_in_hotspots_json_and_the_geopackage(tmp_path, capsys):
     assert main(["export", str(path), str(tmp_path / "box.gpkg")]) == 0
     layer = gpd.read_file(tmp_path / "box.gpkg", layer="hotspots")
     assert list(layer["status"]) == ["measured"]
+
+
+def test_survey_app_live_count_obeys_the_rule():
+    # The app's fast path (mapper.app.live.refit) counts a smoothed single exceedance too.
+    from mapper.app.live import refit
+
+    xy, v, rows = _readings({37: 1.3 * LEVEL})
+    result = refit([r.reading for r in rows], Site("box", BOX), LEVEL, planned=())
+    assert result is not None and result.hotspot_count >= 1
+    assert any(38 in h.reading_ids for h in result.hotspots)
