@@ -116,9 +116,27 @@ def check_field(value_v_per_m: float) -> float:
     return value_v_per_m
 
 
+def decimal_mark(text: str) -> str:
+    """Accept a decimal comma: ``"2,5"`` is 2.5 (one number, one mark); refuse what is ambiguous.
+
+    A single comma with no point is a decimal mark, as much of the world writes it. A comma
+    beside a point (``"1,234.5"``) or several commas could be thousands separators or two numbers:
+    refused rather than guessed.
+    """
+    if "," not in text:
+        return text
+    if text.count(",") == 1 and "." not in text:
+        return text.replace(",", ".")
+    raise MapperError(
+        f"{text.strip()!r} is ambiguous: write one number with a point or a comma as its decimal "
+        "mark, without thousands separators"
+    )
+
+
 def parse_number(text: str) -> float:
-    """Parse a plain finite number, refusing empty text, NaN and infinity."""
-    stripped = text.strip()
+    """Parse a plain finite number (a decimal comma accepted), refusing empty text, NaN and
+    infinity."""
+    stripped = decimal_mark(text.strip())
     if not stripped:
         raise MapperError("empty value; expected a number")
     try:
@@ -152,7 +170,7 @@ def parse_field(text: str, default_unit: str | None = None) -> tuple[float, str,
     stripped = text.strip()
     if not stripped:
         raise MapperError("empty value; expected a field value such as '2.1 kV/m'")
-    match = _QUANTITY.match(stripped)
+    match = _QUANTITY.match(decimal_mark(stripped))
     if match is None:
         raise MapperError(f"{stripped!r} is not a field value; expected e.g. '-2.3 kV/m' or '125 V/in'")
     unit_text = match.group("unit")
@@ -163,6 +181,30 @@ def parse_field(text: str, default_unit: str | None = None) -> tuple[float, str,
     unit = canonical_unit(unit_text)
     value = float(match.group("num"))
     return value, unit, check_field(to_si(value, unit))
+
+
+class BareNumber(float):
+    """An action level typed without a unit: the number, to be read in the survey's display
+    unit (the one rule for every command and the survey app). Resolve with :func:`resolve_threshold`."""
+
+
+def parse_threshold_text(text: str) -> float:
+    """An action level as typed: V/m when it has a unit, else a :class:`BareNumber`."""
+    stripped = decimal_mark(text.strip())
+    match = _QUANTITY.match(stripped)
+    if match is not None and match.group("unit") is None:
+        number = parse_number(match.group("num"))
+        if number <= 0:
+            raise MapperError(f"threshold {text!r} must be positive")
+        return BareNumber(number)
+    return parse_threshold(text)
+
+
+def resolve_threshold(value: float, display_unit: str) -> float:
+    """An action level in V/m: a :class:`BareNumber` is read in ``display_unit``."""
+    if isinstance(value, BareNumber):
+        return check_field(to_si(float(value), canonical_unit(display_unit)))
+    return float(value)
 
 
 def parse_threshold(text: str, default_unit: str = "V/m") -> float:

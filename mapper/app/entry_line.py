@@ -1,12 +1,16 @@
-"""The entry line: accepts only what a field value can contain, so action keys never type."""
+"""The entry line where readings are typed.
+
+It takes every character typed: a value that does not parse stays on the line with a message and
+saves nothing (a filter that dropped characters would turn ``2,5`` into 25 or ``3O`` into 3).
+Action keys are function keys, arrows and Ctrl combinations, so they never type.
+"""
 
 from __future__ import annotations
 
 from textual.widgets import Input
 
-#: Characters a field value with a unit suffix can contain: digits, sign, decimal point,
-#: exponent, space, and the letters and slash of V/m, kV/m, MV/m, V/cm, kV/cm, V/in, kV/in.
-ENTRY_PATTERN = r"[0-9+\-.eE kKvVmMcCiInN/]*"
+#: No character filter: what is typed is what is parsed (kept for callers that pass it on).
+ENTRY_PATTERN = None
 
 
 class EntryLine(Input):
@@ -14,4 +18,4 @@ class EntryLine(Input):
     Backspace edits, Esc clears."""
 
     def __init__(self, *, id: str | None = None) -> None:  # noqa: A002 - Textual's name
-        super().__init__(placeholder="type a reading, Enter saves", restrict=ENTRY_PATTERN, id=id)
+        super().__init__(placeholder="type a reading, Enter saves", id=id)

@@ -649,8 +649,8 @@ class MainScreen(Screen):
             FormScreen(
                 "Conditions",
                 [
-                    Field("rh", "relative humidity, %", placeholder="e.g. 45", restrict=r"[0-9.]*%?"),
-                    Field("temp", "air temperature, °C", placeholder="e.g. 21.5", restrict=r"[0-9+\-.]*"),
+                    Field("rh", "relative humidity, %", placeholder="e.g. 45"),
+                    Field("temp", "air temperature, °C", placeholder="e.g. 21.5"),
                     Field("note", "note (optional)", placeholder="e.g. ionisers on, doors closed"),
                 ],
                 submit,

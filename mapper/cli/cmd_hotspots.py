@@ -30,7 +30,8 @@ def register(sub) -> None:
         "--threshold",
         type=threshold_arg,
         metavar="Q",
-        help="action level with unit, e.g. '1kV/m' or '125 V/in' (default: the survey's own)",
+        help="action level, e.g. '1kV/m' or '125 V/in'; a bare number is in the survey's display unit "
+        "(default: the survey's own)",
     )
     p.add_argument("--json", action="store_true", help="print JSON instead of text")
     p.set_defaults(func=run)

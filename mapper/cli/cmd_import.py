@@ -73,6 +73,11 @@ def run(args) -> int:
         delay = float(os.environ.get("MAPPER_TEST_IMPORT_DELAY", "0") or 0)
         if delay:  # test hook: slow the open transaction down so a test can kill the process in it
             survey.conn.set_progress_handler(lambda: _slow_down(survey, delay), 1000)
+        if not parsed.readings:
+            out = write_rejected(args.file, parsed.rejected) if parsed.rejected else None
+            what = (f"all {len(parsed.rejected)} data rows are bad (see {out})" if out
+                    else "the file has no data rows")
+            raise MapperError(f"nothing imported: {what}; the survey is unchanged", where=args.file)
         digest = _refuse_repeat(survey, args, [args.file])
         stored = survey.add_readings(parsed.readings, source=os.path.basename(args.file), digest=digest)
         if parsed.rejected:

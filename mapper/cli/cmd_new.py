@@ -5,7 +5,7 @@ from __future__ import annotations
 from mapper.cli.common import positive_float, role_arg, say, threshold_arg, unit_arg, warn
 from mapper.plan.grid import DEFAULT_SPACING_M, LAYOUTS
 from mapper.survey.create import DEFAULT_THRESHOLD_V_PER_M, create_survey
-from mapper.units import SIGN_CONVENTIONS, format_field
+from mapper.units import SIGN_CONVENTIONS, format_field, resolve_threshold
 
 
 def register(sub) -> None:
@@ -24,7 +24,7 @@ def register(sub) -> None:
     )
     p.add_argument(
         "--threshold", type=threshold_arg, default=DEFAULT_THRESHOLD_V_PER_M,
-        help="action level with unit (default 125 V/in)",
+        help="action level, e.g. '125 V/in'; a bare number is in the display unit --unit (default 125 V/in)",
     )
     p.add_argument("--operator", default="", help="who surveys")
     p.add_argument(
@@ -46,7 +46,7 @@ def run(args) -> int:
         layout=args.layout,
         display_unit=args.unit,
         sign_convention=args.sign,
-        threshold_v_per_m=args.threshold,
+        threshold_v_per_m=resolve_threshold(args.threshold, args.unit),
         roles=dict(args.role),
         operator=args.operator,
         site_units=args.site_units,

@@ -16,7 +16,8 @@ def register(sub) -> None:
     p.add_argument("survey", help="survey file")
     p.add_argument("out", help="PDF to write")
     p.add_argument("--threshold", type=threshold_arg, default=None,
-                   help="action level with unit, e.g. 1kV/m (default: the survey's own)")
+                   help="action level, e.g. 1kV/m; a bare number is in the survey's display unit "
+                   "(default: the survey's own)")
     p.add_argument("--method", choices=METHODS, default=None,
                    help="interpolation method; given, the field model is rebuilt")
     p.add_argument("--height", type=positive_float, default=None, metavar="METRES",

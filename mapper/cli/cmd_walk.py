@@ -9,7 +9,7 @@ from mapper.cli.common import positive_float, say, threshold_arg, unit_arg
 from mapper.errors import MapperError
 from mapper.plan.grid import DEFAULT_SPACING_M, LAYOUTS
 from mapper.survey.store import Survey
-from mapper.units import SIGN_CONVENTIONS
+from mapper.units import SIGN_CONVENTIONS, resolve_threshold
 
 
 def register(sub) -> None:
@@ -60,7 +60,8 @@ def _open(args) -> Survey:
         layout=args.layout or "square",
         display_unit=args.unit or "V/m",
         sign_convention=args.sign or "physics",
-        threshold_v_per_m=args.threshold or DEFAULT_THRESHOLD_V_PER_M,
+        threshold_v_per_m=(resolve_threshold(args.threshold, args.unit or "V/m") if args.threshold
+                           else DEFAULT_THRESHOLD_V_PER_M),
     )
     say(f"created {survey.path}: {len(survey.plan.points)} points at {survey.plan.spacing_m:g} m")
     return survey

@@ -7,7 +7,7 @@ import sys
 from collections.abc import Sequence
 
 from mapper.errors import MapperError
-from mapper.units import canonical_unit, format_field, parse_threshold
+from mapper.units import canonical_unit, format_field, parse_threshold_text
 
 
 class Parser(argparse.ArgumentParser):
@@ -26,9 +26,10 @@ def unit_arg(text: str) -> str:
 
 
 def threshold_arg(text: str) -> float:
-    """argparse type: an action level with unit, returned in V/m."""
+    """argparse type: an action level, in V/m when it has a unit; a bare number stays a
+    :class:`~mapper.units.BareNumber`, read in the survey's display unit (as the app reads it)."""
     try:
-        return parse_threshold(text)
+        return parse_threshold_text(text)
     except MapperError as exc:
         raise argparse.ArgumentTypeError(exc.message) from None
 

@@ -33,7 +33,7 @@ from mapper.field.physical import seeds_from_site
 from mapper.readings.model import Conditions, CorrectedReading, Reading
 from mapper.site.model import Site
 from mapper.survey.store import Survey
-from mapper.units import canonical_unit
+from mapper.units import BareNumber, canonical_unit, resolve_threshold
 
 #: Notes that say where the field model came from start with this (they are remarks, not warnings).
 FIELD_NOTE_PREFIX = "field model:"
@@ -284,7 +284,8 @@ def survey_products(
         raise MapperError(f"unknown method {method!r}; accepted: {', '.join(METHODS)}")
     site = survey.site
     unit = canonical_unit(unit or survey.display_unit)
-    threshold = float(threshold_v_per_m if threshold_v_per_m is not None else survey.threshold_v_per_m)
+    threshold = (resolve_threshold(threshold_v_per_m, survey.display_unit) if threshold_v_per_m is not None
+                 else float(survey.threshold_v_per_m))
     notes: list[str] = list(site.warnings)
     everything = survey.readings(kind=None)
     controls = tuple(r for r in everything if r.kind in ("zero", "reference"))
@@ -325,7 +326,9 @@ def survey_products(
         display_unit=unit,
         sign_convention=survey.sign_convention,
         threshold_v_per_m=threshold,
-        threshold_source="survey" if threshold_v_per_m is None else "command line",
+        threshold_source="survey" if threshold_v_per_m is None else (
+            f"command line, a bare number read in the survey's display unit {survey.display_unit}"
+            if isinstance(threshold_v_per_m, BareNumber) else "command line"),
         operator=survey.get("operator", "") or "",
         created_utc=survey.get("created_utc", "") or "",
         spacing_m=survey.plan.spacing_m,

@@ -58,10 +58,23 @@ async def test_readings_repeat_undo_and_refusals(box_survey: Path):
         await _enter(pilot, "5 V/")                    # unknown unit
         assert main.last_status.startswith("not saved:")
         await pilot.press("escape")
-        await _type(pilot, "hello")                    # letters outside a field value never type
-        assert main.query_one("#entry").value == "e"
+        # What is typed is what is parsed: nothing is dropped silently (a filter once turned
+        # '2,5' into 25 and '3O' into 3).
+        await _enter(pilot, "3O")                      # letter O, not zero
+        assert main.last_status.startswith("not saved:") and main.query_one("#entry").value == "3O"
+        await pilot.press("escape")
+        await _enter(pilot, "hello")
+        assert main.last_status.startswith("not saved:") and main.query_one("#entry").value == "hello"
+        await pilot.press("escape")
+        await _enter(pilot, "1,2,3")                   # several commas: ambiguous, refused
+        assert main.last_status.startswith("not saved:") and "ambiguous" in main.last_status
         await pilot.press("escape")
         assert survey.count_rows() == rows and app.session.current.label == "A4"
+        await _enter(pilot, "2,5")                     # a decimal comma is a decimal mark
+        assert main.last_status == "saved A4 = 2.5 V/m"
+        await pilot.press("ctrl+z")                    # undo it: the rest of the test expects A4 open
+        await pilot.pause()
+        rows = survey.count_rows()
         # Back to A3 with the arrow key for a repeat reading, then a second repeat.
         await pilot.press("left")
         assert app.session.current.label == "A3"
@@ -83,8 +96,8 @@ async def test_readings_repeat_undo_and_refusals(box_survey: Path):
             ("A1", 12.0, "V/m"), ("A2", 0.015, "kV/m"), ("A3", -8.0, "V/m"), ("A3", -9.0, "V/m"),
         ]
         assert field[1].value_v_per_m == pytest.approx(15.0)
-        # 5 records and 1 undo row: the undone reading stays in the file, superseded.
-        assert s.count_rows() == 6
+        # 6 records and 2 undo rows: the undone readings stay in the file, superseded.
+        assert s.count_rows() == 8
         assert s.get("app_current_point") == "A3"
 
 

@@ -253,3 +253,15 @@ def test_survey_in_read_only_folder_with_pending_wal_is_refused(capsys, monkeypa
     _deny_write(monkeypatch, survey.parent)
     code, err = run(capsys, ["info", str(survey)])
     assert_one_line(code, err, str(survey), "read-only folder", wal.name)
+
+
+def test_skip_bad_that_imports_nothing_is_not_success(box_survey, tmp_path, capsys):
+    from mapper.cli.main import main
+
+    csv = tmp_path / "all_bad.csv"
+    csv.write_text("x,y,value,unit\n1,1,abc,V/m\n2,1,,V/m\n", encoding="utf-8")
+    before = box_survey.read_bytes()
+    assert main(["import", str(box_survey), str(csv), "--skip-bad"]) == 2
+    err = capsys.readouterr().err.strip()
+    assert "nothing imported" in err and "all 2 data rows are bad" in err and len(err.splitlines()) == 1
+    assert box_survey.read_bytes() == before

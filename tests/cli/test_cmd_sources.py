@@ -107,3 +107,23 @@ def test_source_search_with_too_few_readings_says_so(tmp_path, capsys):
     assert main(["sources", str(path)]) == 2
     err = capsys.readouterr().err.strip()
     assert "8 or more distinct positions" in err and len(err.splitlines()) == 1
+
+
+def test_bare_threshold_is_read_in_the_surveys_display_unit(tmp_path, capsys):
+    # One rule everywhere: '125' in a V/in survey is 125 V/in (1 in = 0.0254 m exactly, so
+    # 4 921.26 V/m), as the survey app reads it, and it is printed back with its unit.
+    site = tmp_path / "hall.toml"
+    site.write_text(HALL_SITE.format(height=""), encoding="utf-8")
+    path = tmp_path / "vin.survey"
+    assert main(["new", str(path), "--site", str(site), "--unit", "V/in", "--threshold", "100"]) == 0
+    with Survey.open(path) as s:
+        assert s.threshold_v_per_m == pytest.approx(100 / 0.0254)
+        pts = s.plan.points
+    with Survey.open(path, write=True) as s:
+        v = field_z([CHARGE], np.array([p.x for p in pts]), np.array([p.y for p in pts]), 1.0)
+        s.add_readings([NewReading(p.x, p.y, float(e) * 0.0254, "V/in", float(e)) for p, e in zip(pts, v, strict=True)])
+    capsys.readouterr()
+    assert main(["hotspots", str(path), "--threshold", "125", "--json"]) == 0
+    data = json.loads(capsys.readouterr().out)
+    assert data["threshold_v_per_m"] == pytest.approx(125 / 0.0254)
+    assert "display unit V/in" in data["threshold_source"]

@@ -49,7 +49,7 @@ def test_default_unit_used_without_suffix():
 
 @pytest.mark.parametrize(
     "text",
-    ["", "  ", "abc", "nan", "inf", "-inf", "12 V/furlong", "1,5 kV/m", "3.1 MV/m", "4000 kV/m",
+    ["", "  ", "abc", "nan", "inf", "-inf", "12 V/furlong", "1,5,0 kV/m", "3.1 MV/m", "4000 kV/m",
      "1.2 mV/m", "1.2 mv/m"],
 )
 def test_bad_values_refused(text):
@@ -81,3 +81,19 @@ def test_sign_conventions():
 def test_format():
     assert format_field(4921.26, "kV/m") == "4.921 kV/m"
     assert not math.isnan(from_si(1.0, "V/m"))
+
+
+def test_decimal_comma_is_a_decimal_mark_and_ambiguity_is_refused():
+    # One number per entry: a single comma with no point is the decimal mark much of the world
+    # uses (ISO 80000-1 allows either the comma or the point, from memory); anything else refused.
+    from mapper.errors import MapperError
+    from mapper.units import parse_field, parse_number
+
+    assert parse_number("2,5") == 2.5
+    assert parse_number(" -0,75 ") == -0.75
+    assert parse_field("2,5 kV/m")[2] == pytest.approx(2500.0)
+    for text in ("1,234.5", "1,2,3", "2,5,"):
+        with pytest.raises(MapperError, match="ambiguous"):
+            parse_number(text)
+    with pytest.raises(MapperError):
+        parse_field("3O")  # letter O: not a number, never read as 3
