@@ -81,6 +81,8 @@ class SiteLayers:
 def _edge_mask(geom, xx: np.ndarray, yy: np.ndarray, half: float) -> np.ndarray:
     """Pixels whose centre lies within ``half`` metres of a geometry's boundary (or of a line)."""
     line = geom.boundary if geom.geom_type.endswith("Polygon") else geom
+    if geom.geom_type.endswith("Point"):  # a pillar or a marked spot: a dot of a few pixels
+        half = 1.5 * half
     return shapely.dwithin(line, shapely.points(xx, yy), half)
 
 

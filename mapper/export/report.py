@@ -11,6 +11,7 @@ it stays real, searchable text.
 from __future__ import annotations
 
 import math
+import os
 import textwrap
 from collections.abc import Sequence
 from dataclasses import dataclass
@@ -273,10 +274,17 @@ def _draw_site(ax, products: Products, *, labels: bool = True) -> None:
         if g.geom_type.endswith("Polygon"):
             _fill(ax, g, facecolor="#9a9a9a", edgecolor="#4a4a4a", linewidth=0.7, alpha=0.55, zorder=5,
                   hatch="////" if not asset.walkable else None)
+        elif g.geom_type.endswith("Point"):
+            for pt in getattr(g, "geoms", [g]):
+                ax.plot([pt.x], [pt.y], marker="o", markersize=5, color="#4a4a4a", markeredgecolor="white",
+                        markeredgewidth=0.6, linestyle="none", zorder=5)
         else:
             _lines(ax, g, color="#4a4a4a", linewidth=3.2, solid_capstyle="butt", zorder=5, alpha=0.8)
         if labels:
-            p = g.representative_point() if g.geom_type.endswith("Polygon") else g.interpolate(0.5, normalized=True)
+            if g.geom_type.endswith("Polygon") or g.geom_type.endswith("Point"):
+                p = g.representative_point()
+            else:
+                p = g.interpolate(0.5, normalized=True)
             ax.text(p.x, p.y, asset.name, fontsize=5.8, ha="center", va="center", color="#1e1e1e", zorder=9,
                     style="italic", bbox={"boxstyle": "round,pad=0.08", "fc": "white", "ec": "none", "alpha": 0.6})
     _lines(ax, site.outline, color=st.OUTLINE_COLOR, linewidth=1.6, zorder=7)
@@ -660,11 +668,25 @@ def write_report(products: Products, pdf_path: str | Path, *, png_path: str | Pa
             fig = Figure(figsize=PAGE_SIZE_IN)
             draw(fig, products)
             figures.append(fig)
-        with PdfPages(pdf_path, metadata=meta) as pdf:
-            for fig in figures:
-                pdf.savefig(fig)
-        if png is not None:
-            figures[0].savefig(png, dpi=dpi, facecolor="white")
+        # Written beside the target and renamed into place when complete: a killed run never
+        # leaves a truncated file under the final name, nor replaces a good earlier one.
+        tmp_pdf = pdf_path.with_name(f".{pdf_path.name}.part")
+        tmp_png = png.with_name(f".{png.name}.part") if png is not None else None
+        try:
+            with PdfPages(tmp_pdf, metadata=meta) as pdf:
+                for fig in figures:
+                    pdf.savefig(fig)
+            if tmp_png is not None:
+                figures[0].savefig(tmp_png, dpi=dpi, facecolor="white", format="png")
+            os.replace(tmp_pdf, pdf_path)
+            if tmp_png is not None:
+                os.replace(tmp_png, png)
+        except OSError as exc:
+            raise MapperError(f"could not write the report: {exc.strerror or exc}", where=str(pdf_path)) from None
+        finally:
+            for leftover in (tmp_pdf, tmp_png):
+                if leftover is not None:
+                    leftover.unlink(missing_ok=True)
     return ReportResult(pdf_path, png, len(figures))
 
 

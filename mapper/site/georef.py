@@ -164,4 +164,12 @@ def fit_similarity(
     tx, ty = tx + e0, ty + n0
     fe, fn = a * x - b * y + tx, b * x + a * y + ty
     residuals = tuple(float(r) for r in np.hypot(fe - e, fn - n))
+    scale = float(np.hypot(a, b))
+    if not np.isfinite([e, n]).all() or not np.isfinite(scale):
+        raise MapperError("the control points' lon/lat cannot be projected; check for swapped lon and lat")
+    if np.ptp(np.column_stack([e, n]), axis=0).max() <= 1e-6:
+        raise MapperError("control points all have the same lon/lat; they must be apart on the ground")
+    if scale < 1e-3 or scale > 1e3:
+        raise MapperError(f"the control points give a scale of {scale:.3g} map metres per site metre; "
+                          "check the site units and that lon/lat belong to the right x, y")
     return Georef(crs=target.to_string(), a=float(a), b=float(b), tx=float(tx), ty=float(ty), residuals_m=residuals)

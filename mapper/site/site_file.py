@@ -6,6 +6,7 @@ The TOML format is documented in ``docs/site-file.md``.
 from __future__ import annotations
 
 import dataclasses
+import math
 import re
 import tomllib
 from collections.abc import Mapping
@@ -186,16 +187,20 @@ def site_from_toml_text(text: str, source: str = "<site>") -> Site:
     points = []
     for i, item in enumerate(data.get("control_point", [])):
         try:
-            points.append(
-                ControlPoint(
-                    float(item["x"]) * factor, float(item["y"]) * factor, float(item["lon"]), float(item["lat"])
-                )
-            )
+            values = {k: float(item[k]) for k in ("x", "y", "lon", "lat")}
         except (KeyError, TypeError, ValueError) as exc:
             raise MapperError(
                 f"control point needs numeric x, y, lon, lat ({exc})",
                 where=_where(source, text, "control_point", i, "x"),
             ) from None
+        for key, value in values.items():
+            if not math.isfinite(value):
+                raise MapperError(f"control point '{key}' must be a finite number, got {value}",
+                                  where=_where(source, text, "control_point", i, key))
+        if not -90.0 <= values["lat"] <= 90.0 or not -180.0 <= values["lon"] <= 180.0:
+            raise MapperError(f"control point lon {values['lon']:g}, lat {values['lat']:g} is not on the Earth "
+                              "(lon -180..180, lat -90..90)", where=_where(source, text, "control_point", i, "lat"))
+        points.append(ControlPoint(values["x"] * factor, values["y"] * factor, values["lon"], values["lat"]))
     try:
         return _finish(name, outline, assets, zones, points, crs, source)
     except MapperError as exc:
@@ -216,6 +221,11 @@ def _finish(name, outline, assets, zones, points, crs, source, georef: Georef | 
             warnings.append(f"zone {zone.name!r} lies outside the site outline")
     if georef is None and len(points) >= 2:
         georef = fit_similarity([(p.x, p.y) for p in points], [(p.lon, p.lat) for p in points], crs)
+        if not 0.9 <= georef.scale <= 1.1:
+            warnings.append(
+                f"georeference scale {georef.scale:.3f} is far from 1 for a drawing in metres (0.9-1.1); "
+                "check the site units and the control points"
+            )
         if georef.rms_m > RMS_WARN_M:
             worst = max(range(len(points)), key=lambda k: georef.residuals_m[k])
             warnings.append(

@@ -81,3 +81,20 @@ def test_png_map_alone(report):
     png = report["result"].png
     with Image.open(png) as im:
         assert im.size[0] > 1500 and im.size[0] > im.size[1]  # A4 landscape at 160 dpi
+
+
+def test_point_assets_are_drawn_not_a_crash(hall, tmp_path):
+    # A pillar given as a POINT asset beside the hall's lines and polygons: the report draws and
+    # labels it instead of failing.
+    import dataclasses
+
+    import shapely
+
+    from mapper.site.model import Asset
+
+    p = hall["products"]
+    site = dataclasses.replace(p.site, assets=(*p.site.assets, Asset("pillar P1", "pillar", shapely.Point(20, 4))))
+    result = write_report(dataclasses.replace(p, site=site), tmp_path / "points.pdf")
+    doc = pdfium.PdfDocument(result.pdf)
+    assert "pillar P1" in doc[0].get_textpage().get_text_range()
+    doc.close()

@@ -191,3 +191,50 @@ def test_vector_sensitive_attribute_and_zone_limit(tmp_path):
     site = load_site(path)
     assert site.assets[0].sensitive is True  # kind 'cabinet' is not sensitive by default
     assert site.zones[0].limit_v_per_m == 1000.0
+
+
+_CP_SITE = """
+[site]
+name = "Cp"
+units = "m"
+[outline]
+wkt = "POLYGON ((0 0, 20 0, 20 12, 0 12, 0 0))"
+[[control_point]]
+x = {x0}
+y = 0.0
+lon = 13.7
+lat = {lat0}
+[[control_point]]
+x = 20.0
+y = 0.0
+lon = {lon1}
+lat = 51.0
+"""
+
+
+@pytest.mark.parametrize("x0, lat0, lon1, message", [
+    ("inf", "51.0", "13.7003", "finite"),            # once made 'mapper new' spin forever
+    ("nan", "51.0", "13.7003", "finite"),
+    ("0.0", "51.0", "13.7", "same lon/lat"),         # scale 0: every reading at one place
+    ("0.0", "91.0", "13.7003", "not on the Earth"),
+])
+def test_georeference_that_cannot_be_right_is_refused(tmp_path, x0, lat0, lon1, message):
+    from mapper.errors import MapperError
+    from mapper.site.site_file import load_site
+
+    path = tmp_path / "cp.toml"
+    path.write_text(_CP_SITE.format(x0=x0, lat0=lat0, lon1=lon1), encoding="utf-8")
+    with pytest.raises(MapperError, match=message) as err:
+        load_site(path)
+    assert "cp.toml:" in str(err.value.where)
+
+
+def test_scale_far_from_one_is_a_warning(tmp_path):
+    from mapper.site.site_file import load_site
+
+    # 20 site metres against about 42 m on the ground (0.0006 deg of longitude at 51 deg N,
+    # 111.32 km x cos(51 deg) per degree, from memory): scale about 2.1.
+    path = tmp_path / "cp.toml"
+    path.write_text(_CP_SITE.format(x0="0.0", lat0="51.0", lon1="13.7006"), encoding="utf-8")
+    site = load_site(path)
+    assert any("scale" in w and "far from 1" in w for w in site.warnings)
