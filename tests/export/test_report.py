@@ -98,3 +98,25 @@ def test_point_assets_are_drawn_not_a_crash(hall, tmp_path):
     doc = pdfium.PdfDocument(result.pdf)
     assert "pillar P1" in doc[0].get_textpage().get_text_range()
     doc.close()
+
+
+def test_failed_report_leaves_the_earlier_one_whole(hall, tmp_path, monkeypatch):
+    # Written beside the target and renamed into place: a run that dies while writing neither
+    # truncates the earlier report nor leaves a partial file under the final name.
+    from matplotlib.backends import backend_pdf
+
+    target = tmp_path / "hall.pdf"
+    write_report(hall["products"], target)
+    good = target.read_bytes()
+
+    def dying(self, *args, **kwargs):
+        raise OSError(28, "No space left on device")
+
+    monkeypatch.setattr(backend_pdf.PdfPages, "savefig", dying)
+    from mapper.errors import MapperError
+
+    with pytest.raises(MapperError, match="No space left on device") as err:
+        write_report(hall["products"], target)
+    assert str(target) in str(err.value.where)
+    assert target.read_bytes() == good
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["hall.pdf"]
