@@ -16,6 +16,7 @@ from mapper.cli.common import fmt, say, table, threshold_arg, warn
 from mapper.export.pipeline import Products, survey_file_products
 from mapper.features import Findings
 from mapper.features.hotspots import MEASURED_NOTE
+from mapper.features.zone_results import zone_sentence
 
 
 def register(sub) -> None:
@@ -151,6 +152,9 @@ def report_lines(products: Products) -> list[str]:
         header = list(_HOTSPOT_HEADER)
         header.insert(1, "limit")
         out.append(table(rows, header))
+    if findings.zone_results:
+        out += ["", "Zone results:"]
+        out += [f"  {zone_sentence(r, lambda v: fmt(v, unit))}" for r in findings.zone_results]
     out.append("")
     if not findings.probability_available:
         out.append(

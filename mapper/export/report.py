@@ -39,6 +39,7 @@ from mapper.features import CAUTIONS, LIMITS_ARE_DEFAULTS
 from mapper.features.contours import Levels, nice_levels
 from mapper.features.hotspots import MEASURED_NOTE
 from mapper.features.sources import LIMITATIONS, source_records
+from mapper.features.zone_results import zone_sentence
 from mapper.survey.store import to_utc_text, utc_now
 from mapper.units import format_field, from_si
 
@@ -424,6 +425,26 @@ def _hotspot_rows(products: Products) -> list[list[str]]:
     return rows
 
 
+def sign_and_height(p: Products) -> str:
+    """The meter's sign convention (and that values were converted) and the measurement height."""
+    if p.sign_convention == "atmospheric":
+        sign = ("Meter sign: atmospheric (potential gradient, fair weather positive); every value here "
+                "was converted to the physics convention (upward field positive, fair weather negative).")
+    else:
+        sign = "Meter sign: physics convention (upward field positive); values shown as the meter gave them."
+    heights = sorted({r.reading.height_m for r in p.readings if r.reading.height_m is not None})
+    if not heights:
+        height = "Measurement height: not recorded (the physical model assumes 1 m)."
+    elif len(heights) == 1:
+        height = f"Measurement height: {heights[0]:.2f} m above the floor."
+    else:
+        height = f"Measurement height: {heights[0]:.2f}-{heights[-1]:.2f} m above the floor."
+    if p.grid is not None and p.grid.params.get("prediction_height_m") is not None and \
+            p.grid.params.get("prediction_height_m") not in heights:
+        height += f" The map shows the field at {p.grid.params['prediction_height_m']:.2f} m (physical model)."
+    return f"{sign} {height}"
+
+
 def draw_findings_page(fig: Figure, products: Products) -> None:
     """Page 2: hotspot table, violations, conditions, meter, method and CV, std map, cautions."""
     p = products
@@ -472,6 +493,11 @@ def draw_findings_page(fig: Figure, products: Products) -> None:
     else:
         col.para("None: no sensitive asset is closer to a high-field region than the keep-away rules allow "
                  "(" + "; ".join(r.text for r in f.rules) + ").", 7.5)
+    if f is not None and f.zone_results:
+        col.heading("Zones")
+        for r in f.zone_results:
+            col.para("• " + zone_sentence(r, lambda v: format_field(v, unit, 3)), 7.5,
+                     color="#b00020" if r.exceeded else "black")
     col.para(LIMITS_ARE_DEFAULTS, 7.0, color="#444444")
 
     col.heading("Conditions")
@@ -499,6 +525,7 @@ def draw_findings_page(fig: Figure, products: Products) -> None:
                  + f", specified at {m.distance_m * 100:.3g} cm; {cal}{due}{fit}.", 7.5)
     if p.corrections is not None:
         col.para("Corrections applied: " + (", ".join(p.corrections.applied) or "none") + ".", 7.5)
+    col.para(sign_and_height(p), 7.5)
 
     if f is not None and f.advice:
         col.heading("Next readings")

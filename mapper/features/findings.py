@@ -40,6 +40,7 @@ from mapper.features.limits import (
     Violation,
     check_keep_away,
 )
+from mapper.features.zone_results import ZoneResult, zone_results
 from mapper.field.model import FieldGrid
 from mapper.readings.model import CorrectedReading
 from mapper.site.model import Site
@@ -66,6 +67,8 @@ class Findings:
         Regions with |E| >= threshold, both polarities.
     zone_hotspots : tuple of Hotspot
         Regions inside zones whose own limit differs from the threshold, at that limit.
+    zone_results : tuple of ZoneResult
+        Every zone against its limit: passed or exceeded, by how much, where.
     probable : tuple of ProbableRegion
         Regions where P(|E| >= threshold) >= 0.5; empty when the model has no std.
     probability_available : bool
@@ -91,6 +94,7 @@ class Findings:
     bands: tuple[Band, ...]
     hotspots: tuple[Hotspot, ...]
     zone_hotspots: tuple[Hotspot, ...]
+    zone_results: tuple[ZoneResult, ...]
     probable: tuple[ProbableRegion, ...]
     probability_available: bool
     violations: tuple[Violation, ...]
@@ -113,6 +117,7 @@ class Findings:
             "levels_v_per_m": list(self.levels.values_v_per_m),
             "hotspots": [h.to_dict() for h in self.hotspots],
             "zone_hotspots": [h.to_dict() for h in self.zone_hotspots],
+            "zone_results": [r.to_dict() for r in self.zone_results],
             "probable": [p.to_dict() for p in self.probable],
             "probability_available": self.probability_available,
             "violations": [v.to_dict() for v in self.violations],
@@ -191,6 +196,7 @@ def analyse(
         bands=bands(grid, site.outline, levels),
         hotspots=hotspots,
         zone_hotspots=zone_hotspots(grid, site, readings, skip_limit_v_per_m=t),
+        zone_results=zone_results(grid, site, readings, t),
         probable=probable,
         probability_available=has_std,
         violations=check_keep_away(grid, site, rules),

@@ -120,3 +120,11 @@ def test_failed_report_leaves_the_earlier_one_whole(hall, tmp_path, monkeypatch)
     assert str(target) in str(err.value.where)
     assert target.read_bytes() == good
     assert sorted(p.name for p in tmp_path.iterdir()) == ["hall.pdf"]
+
+
+def test_report_states_zone_results_sign_and_height(report):
+    page2 = _flat(report["texts"][1])
+    assert "Zones" in page2 and "packing EPA (limit" in page2
+    assert ("EXCEEDED by" in page2) or ("passed" in page2)
+    assert "Meter sign: physics convention" in page2
+    assert "Measurement height: 1.00 m" in page2  # the sample's readings carry height_m = 1.00
