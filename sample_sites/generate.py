@@ -44,6 +44,7 @@ HALL_TOML = """# North Hall: an invented packaging hall with two conveyor lines,
 name = "North Hall"
 units = "m"
 crs = "EPSG:32633"
+timezone = "Europe/Berlin"
 
 [outline]
 wkt = "POLYGON ((0 0, 48 0, 48 30, 12 30, 12 25, 0 25, 0 0))"

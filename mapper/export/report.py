@@ -248,11 +248,24 @@ class _Column:
 
 
 # ------------------------------------------------------------------------------------- pages
+def local_span(span, timezone: str | None) -> str:
+    """The survey's time span, in the site's local time with its UTC offset when it has a
+    ``timezone`` (times stay UTC in the data), else in UTC."""
+    if not timezone:
+        return f"{span[0]:%Y-%m-%d %H:%M}–{span[1]:%H:%M} UTC"
+    from zoneinfo import ZoneInfo
+
+    zone = ZoneInfo(timezone)
+    a, b = span[0].astimezone(zone), span[1].astimezone(zone)
+    offset = a.strftime("%z")
+    return f"{a:%Y-%m-%d %H:%M}–{b:%H:%M} {timezone} (UTC{offset[:3]}:{offset[3:]})"
+
+
 def _title(fig: Figure, products: Products, heading: str) -> None:
     p = products
     fig.text(0.04, 0.965, f"{p.name}: {heading}", fontsize=15, fontweight="bold", va="top")
     span = p.time_span()
-    when = f"{span[0]:%Y-%m-%d %H:%M}–{span[1]:%H:%M} UTC" if span else "no readings"
+    when = local_span(span, p.site.timezone) if span else "no readings"
     method = (f"{p.grid.method}, cell {p.grid.cell_m:g} m" if p.grid is not None else "no field model")
     fig.text(0.04, 0.925, f"Survey {when}  ·  {len(p.readings)} readings  ·  action level "
              f"{format_field(p.threshold_v_per_m, p.display_unit)}  ·  {method}"

@@ -117,6 +117,7 @@ class Site:
     georef: Georef | None = None
     warnings: tuple[str, ...] = field(default=(), compare=False)
     source: str = field(default="", compare=False)
+    timezone: str | None = None
 
     @property
     def area_m2(self) -> float:
@@ -154,6 +155,7 @@ class Site:
             ],
             "georef": self.georef.to_dict() if self.georef else None,
             "source": self.source,
+            "timezone": self.timezone,
         }
 
     @classmethod
@@ -175,4 +177,5 @@ class Site:
             crs=data.get("crs"),
             georef=Georef.from_dict(data["georef"]) if data.get("georef") else None,
             source=data.get("source", ""),
+            timezone=data.get("timezone"),
         )

@@ -11,6 +11,7 @@ import re
 import tomllib
 from collections.abc import Mapping
 from pathlib import Path
+from zoneinfo import ZoneInfo, ZoneInfoNotFoundError
 
 import numpy as np
 import shapely
@@ -202,13 +203,29 @@ def site_from_toml_text(text: str, source: str = "<site>") -> Site:
                               "(lon -180..180, lat -90..90)", where=_where(source, text, "control_point", i, "lat"))
         points.append(ControlPoint(values["x"] * factor, values["y"] * factor, values["lon"], values["lat"]))
     try:
-        return _finish(name, outline, assets, zones, points, crs, source)
+        site = _finish(name, outline, assets, zones, points, crs, source)
     except MapperError as exc:
         if exc.where is not None:
             raise
         # the georeference refused the CRS or the control points: point at the file
         key = ("site", 0, "crs") if "CRS" in exc.message else ("control_point", 0, "x")
         raise MapperError(exc.message, where=_where(source, text, *key)) from None
+    return dataclasses.replace(site, timezone=_timezone(head.get("timezone"), _where(source, text, "site", 0, "timezone")))
+
+
+def _timezone(value, where: str) -> str | None:
+    """The site's local time zone: an IANA name such as ``Europe/Berlin`` (times stay UTC inside)."""
+    if value is None:
+        return None
+    if not isinstance(value, str) or not value.strip():
+        raise MapperError(f"'timezone' must be an IANA time zone name such as 'Europe/Berlin', got {value!r}",
+                          where=where)
+    try:
+        ZoneInfo(value.strip())
+    except (ZoneInfoNotFoundError, ValueError):
+        raise MapperError(f"unknown time zone {value!r}; give an IANA name such as 'Europe/Berlin'",
+                          where=where) from None
+    return value.strip()
 
 
 def _finish(name, outline, assets, zones, points, crs, source, georef: Georef | None = None) -> Site:

@@ -128,3 +128,10 @@ def test_report_states_zone_results_sign_and_height(report):
     assert ("EXCEEDED by" in page2) or ("passed" in page2)
     assert "Meter sign: physics convention" in page2
     assert "Measurement height: 1.00 m" in page2  # the sample's readings carry height_m = 1.00
+
+
+def test_times_are_local_with_their_offset(report):
+    # The sample hall's site file says timezone = "Europe/Berlin"; its first reading is at
+    # 07:30 UTC on 17 November, when Berlin keeps CET, UTC+01:00 (IANA tz database).
+    page1 = _flat(report["texts"][0])
+    assert "2026-11-17 08:30" in page1 and "Europe/Berlin (UTC+01:00)" in page1

@@ -238,3 +238,20 @@ def test_scale_far_from_one_is_a_warning(tmp_path):
     path.write_text(_CP_SITE.format(x0="0.0", lat0="51.0", lon1="13.7006"), encoding="utf-8")
     site = load_site(path)
     assert any("scale" in w and "far from 1" in w for w in site.warnings)
+
+
+@pytest.mark.parametrize("value, message", [('"Mars/Olympus"', "unknown time zone"), ("5", "IANA")])
+def test_timezone_must_be_an_iana_name(tmp_path, value, message):
+    from mapper.errors import MapperError
+    from mapper.site.site_file import load_site
+
+    path = tmp_path / "tz.toml"
+    path.write_text(f'[site]\nname = "Tz"\ntimezone = {value}\n[outline]\nwkt = "POLYGON ((0 0, 9 0, 9 9, 0 9, 0 0))"\n',
+                    encoding="utf-8")
+    with pytest.raises(MapperError, match=message) as err:
+        load_site(path)
+    assert "tz.toml:3" in str(err.value.where)
+    ok = tmp_path / "ok.toml"
+    ok.write_text('[site]\nname = "Tz"\ntimezone = "Europe/Berlin"\n[outline]\nwkt = "POLYGON ((0 0, 9 0, 9 9, 0 9, 0 0))"\n',
+                  encoding="utf-8")
+    assert load_site(ok).timezone == "Europe/Berlin"
