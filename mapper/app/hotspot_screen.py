@@ -66,7 +66,9 @@ class HotspotScreen(Screen[tuple[float, float] | None]):
 
     def compose(self) -> ComposeResult:
         yield Static(
-            f"Hotspots: |E| ≥ {self.threshold_label} in the live map (corrected readings; {self.engine})",
+            f"Where the field reaches {self.threshold_label} (either sign), on the live map of the corrected "
+            f"readings ({self.engine}). 'mapper hotspots' and the report use the stored field model "
+            "('mapper grid'), whose outlines can differ; every reading at the level is in a hotspot in both.",
             id="hotspot-title",
         )
         yield DataTable(id="hotspot-table", cursor_type="row", zebra_stripes=True)

@@ -135,3 +135,19 @@ def test_survey_app_live_count_obeys_the_rule():
     result = refit([r.reading for r in rows], Site("box", BOX), LEVEL, planned=())
     assert result is not None and result.hotspot_count >= 1
     assert any(38 in h.reading_ids for h in result.hotspots)
+
+
+async def test_hotspot_screen_says_which_map_it_shows():
+    from textual.app import App
+
+    from mapper.app.hotspot_screen import HotspotScreen
+
+    class _Host(App):
+        def on_mount(self) -> None:
+            self.push_screen(HotspotScreen((), lambda v: f"{v:.0f} V/m", "4921 V/m", "fast ordinary kriging", "V/m"))
+
+    app = _Host()
+    async with app.run_test(size=(120, 30)) as pilot:
+        await pilot.pause()
+        title = str(app.screen.query_one("#hotspot-title").render())
+        assert "live map" in title and "fast ordinary kriging" in title and "stored field model" in title
