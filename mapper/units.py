@@ -239,7 +239,19 @@ def from_physics_sign(value: float, convention: str) -> float:
     return to_physics_sign(value, convention)
 
 
+def plain_number(value: float, digits: int = 4) -> str:
+    """``digits`` significant digits in fixed-point notation: never ``1.048e+04`` in what a
+    person reads (``10480``), trailing zeros dropped."""
+    if value == 0 or not math.isfinite(value):
+        return f"{value:g}"
+    magnitude = math.floor(math.log10(abs(value)))
+    text = f"{round(value, digits - 1 - magnitude):.{max(digits - 1 - magnitude, 0)}f}"
+    if "." in text:
+        text = text.rstrip("0").rstrip(".")
+    return "0" if text in ("-0", "") else text
+
+
 def format_field(value_v_per_m: float, unit: str, digits: int = 4) -> str:
-    """Format a V/m value in a display unit, e.g. ``"4.921 kV/m"``."""
+    """Format a V/m value in a display unit, e.g. ``"4.921 kV/m"`` (fixed-point, no exponent)."""
     unit = canonical_unit(unit)
-    return f"{from_si(value_v_per_m, unit):.{digits}g} {unit}"
+    return f"{plain_number(from_si(value_v_per_m, unit), digits)} {unit}"

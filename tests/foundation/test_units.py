@@ -97,3 +97,14 @@ def test_decimal_comma_is_a_decimal_mark_and_ambiguity_is_refused():
             parse_number(text)
     with pytest.raises(MapperError):
         parse_field("3O")  # letter O: not a number, never read as 3
+
+
+def test_field_values_read_without_scientific_notation():
+    from mapper.units import format_field
+
+    # 1 in = 0.0254 m exactly: 125 V/in = 4921.26 V/m (ANSI/ESD S20.20 level in SI).
+    assert format_field(125 / 0.0254, "V/m") == "4921 V/m"
+    assert format_field(-10480.3, "V/m") == "-10480 V/m"
+    assert format_field(2.5e6, "V/m") == "2500000 V/m"
+    assert format_field(53.7, "kV/m") == "0.0537 kV/m"
+    assert "e" not in format_field(123456.0, "V/m").split()[0]
