@@ -6,7 +6,6 @@ surveys' hotspots, the hotspot changes, the common region and a one-row summary 
 
 from __future__ import annotations
 
-import os
 from pathlib import Path
 
 import geopandas as gpd
@@ -17,6 +16,7 @@ import rasterio
 from rasterio.transform import Affine
 from scipy.interpolate import RegularGridInterpolator
 
+from mapper.atomic_file import atomic_path
 from mapper.errors import MapperError
 from mapper.export.crs import ExportCRS, export_crs, transform_all
 from mapper.features import Comparison, bands, nice_levels
@@ -95,10 +95,7 @@ def write_comparison_gpkg(path: str | Path, cmp: Comparison, site: Site, unit: s
     if not path.parent.is_dir():
         raise MapperError("folder does not exist", where=str(path.parent))
     ecrs = export_crs(site)
-    tmp = path.with_name(f".{path.stem}.partial.gpkg")
-    if tmp.exists():
-        tmp.unlink()
-    try:
+    with atomic_path(path) as tmp:
         _frame([{"area_m2": float(cmp.common_region.area)}], [cmp.common_region], ecrs).to_file(
             tmp, layer="common_region", driver="GPKG"
         )
@@ -175,10 +172,6 @@ def write_comparison_gpkg(path: str | Path, cmp: Comparison, site: Site, unit: s
             TILE_FORMAT="TIFF",
         ) as ds:
             ds.write(array, 1)
-        os.replace(tmp, path)
-    finally:
-        if tmp.exists():
-            tmp.unlink()
 
 
 __all__ = ["LAYERS", "RASTER", "difference_raster", "write_comparison_gpkg"]

@@ -4,11 +4,11 @@ from __future__ import annotations
 
 import csv
 import math
-import os
 from pathlib import Path
 
 import pandas as pd
 
+from mapper.atomic_file import atomic_path
 from mapper.errors import MapperError
 from mapper.export.layers import READING_COLUMNS, reading_records
 from mapper.export.pipeline import Products
@@ -46,20 +46,13 @@ def write_readings_csv(products: Products, path: str | Path) -> Path:
         raise MapperError("folder does not exist", where=str(path.parent))
     records = reading_records(products)
     xs, ys = products.crs.points([r["x_site_m"] for r in records], [r["y_site_m"] for r in records])
-    # Written beside the target and renamed into place when complete: a killed export never
-    # leaves a short CSV that ends on a complete row and looks valid.
-    tmp = path.with_name(f".{path.name}.part")
-    try:
-        with open(tmp, "w", newline="", encoding="utf-8") as handle:
-            writer = csv.writer(handle)
-            writer.writerow(CSV_COLUMNS)
-            for rec, x, y in zip(records, xs.tolist(), ys.tolist(), strict=True):
-                writer.writerow([_cell(v) for v in (x, y, products.crs.name, *(rec[c] for c in READING_COLUMNS))])
-        os.replace(tmp, path)
-    except OSError as exc:
-        raise MapperError(f"could not write the CSV: {exc.strerror or exc}", where=str(path)) from None
-    finally:
-        tmp.unlink(missing_ok=True)
+    # Written beside the target and renamed into place when complete (mapper.atomic_file): a
+    # killed export never leaves a short CSV that ends on a complete row and looks valid.
+    with atomic_path(path) as tmp, open(tmp, "w", newline="", encoding="utf-8") as handle:
+        writer = csv.writer(handle)
+        writer.writerow(CSV_COLUMNS)
+        for rec, x, y in zip(records, xs.tolist(), ys.tolist(), strict=True):
+            writer.writerow([_cell(v) for v in (x, y, products.crs.name, *(rec[c] for c in READING_COLUMNS))])
     return path
 
 

@@ -7,7 +7,6 @@ moved into place, so a failed export never leaves half a GeoPackage under the wa
 
 from __future__ import annotations
 
-import os
 import sqlite3
 from dataclasses import dataclass
 from pathlib import Path
@@ -15,6 +14,7 @@ from pathlib import Path
 import pandas as pd
 import pyogrio
 
+from mapper.atomic_file import atomic_path
 from mapper.errors import MapperError
 from mapper.export import styles as st
 from mapper.export.layers import Layer, all_layers
@@ -95,10 +95,8 @@ def write_geopackage(products: Products, path: str | Path, *, exported_utc: str 
         raise MapperError(f"output {path.name!r} should end in .gpkg", where=str(path))
     if not path.parent.exists():
         raise MapperError("folder does not exist", where=str(path.parent))
-    tmp = path.with_name(f".{path.stem}.part.gpkg")
-    tmp.unlink(missing_ok=True)
     counts: dict[str, int] = {}
-    try:
+    with atomic_path(path) as tmp:
         for layer in all_layers(products):
             _write_layer(tmp, layer)
             counts[layer.name] = len(layer.frame)
@@ -123,10 +121,6 @@ def write_geopackage(products: Products, path: str | Path, *, exported_utc: str 
         finally:
             conn.close()
         counts["layer_styles"] = len(styles)
-        os.replace(tmp, path)
-    except BaseException:
-        tmp.unlink(missing_ok=True)
-        raise
     return GpkgResult(path, counts, products.crs.name)
 
 

@@ -9,13 +9,13 @@ from __future__ import annotations
 
 import json
 import math
-import os
 from pathlib import Path
 
 import numpy as np
 import rasterio
 from rasterio.transform import Affine
 
+from mapper.atomic_file import atomic_path
 from mapper.errors import MapperError
 from mapper.export.crs import ExportCRS
 from mapper.field.model import FieldGrid
@@ -78,13 +78,12 @@ def write_geotiff(grid: FieldGrid, ecrs: ExportCRS, path: str | Path, *, tags: d
         raise MapperError(f"grid arrays have shape {est.shape}; expected {(len(grid.y), len(grid.x))}")
     std = np.where(np.isfinite(est), std, np.nan).astype(np.float32)
     height, width = est.shape
-    tmp = path.with_name(f".{path.stem}.part.tif")
     profile = {
         "driver": "GTiff", "width": width, "height": height, "count": 2, "dtype": "float32",
         "crs": ecrs.wkt, "transform": grid_transform(grid, ecrs), "nodata": math.nan,
         "compress": "deflate", "predictor": 3,
     }
-    try:
+    with atomic_path(path) as tmp:
         with rasterio.open(tmp, "w", **profile) as dst:
             dst.write(est, 1)
             dst.write(std, 2)
@@ -97,10 +96,6 @@ def write_geotiff(grid: FieldGrid, ecrs: ExportCRS, path: str | Path, *, tags: d
             dst.update_tags(1, quantity="electric field estimate, physics sign (positive upward)")
             dst.update_tags(2, quantity="standard deviation of the estimate" if np.isfinite(std).any()
                             else f"no standard deviation from method {grid.method}")
-        os.replace(tmp, path)
-    except BaseException:
-        tmp.unlink(missing_ok=True)
-        raise
     return path
 
 

@@ -11,7 +11,6 @@ it stays real, searchable text.
 from __future__ import annotations
 
 import math
-import os
 import textwrap
 from collections.abc import Sequence
 from dataclasses import dataclass
@@ -32,6 +31,7 @@ from shapely.geometry.base import BaseGeometry
 from shapely.geometry.polygon import orient
 
 from mapper import __version__
+from mapper.atomic_file import atomic_path
 from mapper.errors import MapperError
 from mapper.export import styles as st
 from mapper.export.pipeline import Products
@@ -708,25 +708,14 @@ def write_report(products: Products, pdf_path: str | Path, *, png_path: str | Pa
             fig = Figure(figsize=PAGE_SIZE_IN)
             draw(fig, products)
             figures.append(fig)
-        # Written beside the target and renamed into place when complete: a killed run never
-        # leaves a truncated file under the final name, nor replaces a good earlier one.
-        tmp_pdf = pdf_path.with_name(f".{pdf_path.name}.part")
-        tmp_png = png.with_name(f".{png.name}.part") if png is not None else None
-        try:
-            with PdfPages(tmp_pdf, metadata=meta) as pdf:
-                for fig in figures:
-                    pdf.savefig(fig)
-            if tmp_png is not None:
-                figures[0].savefig(tmp_png, dpi=dpi, facecolor="white", format="png")
-            os.replace(tmp_pdf, pdf_path)
-            if tmp_png is not None:
-                os.replace(tmp_png, png)
-        except OSError as exc:
-            raise MapperError(f"could not write the report: {exc.strerror or exc}", where=str(pdf_path)) from None
-        finally:
-            for leftover in (tmp_pdf, tmp_png):
-                if leftover is not None:
-                    leftover.unlink(missing_ok=True)
+        # Written beside the target and renamed into place when complete (mapper.atomic_file): a
+        # killed run never leaves a truncated file under the final name, nor replaces a good one.
+        with atomic_path(pdf_path) as tmp, PdfPages(tmp, metadata=meta) as pdf:
+            for fig in figures:
+                pdf.savefig(fig)
+        if png is not None:
+            with atomic_path(png) as tmp:
+                figures[0].savefig(tmp, dpi=dpi, facecolor="white", format="png")
     return ReportResult(pdf_path, png, len(figures))
 
 
