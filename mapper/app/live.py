@@ -19,6 +19,7 @@ from mapper.corrections.meter import MeterProfile
 from mapper.corrections.pipeline import correct
 from mapper.errors import MapperError
 from mapper.features import advise_sampling, find_hotspots
+from mapper.features.hotspots import reading_hotspots
 from mapper.field import FieldGrid, build_field
 from mapper.field.inputs import distinct_positions, field_inputs, usable
 from mapper.plan.grid import PlanPoint
@@ -136,6 +137,14 @@ def find_live_features(
     return hotspots, len(hotspots), sugg, "map features"
 
 
+def _measured_only(site: Site, readings: Sequence[CorrectedReading], threshold_v_per_m: float) -> tuple:
+    """Hotspots from the readings alone (:func:`mapper.features.hotspots.reading_hotspots`)."""
+    try:
+        return reading_hotspots(site, threshold_v_per_m, readings)
+    except MapperError:
+        return ()
+
+
 def refit(
     readings: Sequence[Reading],
     site: Site,
@@ -175,13 +184,17 @@ def refit(
     if cancelled():
         return None
     if grid is None:
-        return LiveResult(None, engine=engine, readings=len(field_rs), seconds=time.perf_counter() - t0)
+        # No map yet, but a reading at or beyond the level is a hotspot all the same.
+        measured = _measured_only(site, field_rs, threshold_v_per_m)
+        return LiveResult(None, measured, len(measured), engine=engine, readings=len(field_rs),
+                          seconds=time.perf_counter() - t0)
     notes: tuple[str, ...] = ()
     try:
         hotspots, count, sugg, feat = find_live_features(grid, site, field_rs, threshold_v_per_m, planned)
     except MapperError as exc:
-        hotspots, count, sugg, feat = (), 0, (), "none"
-        notes = (f"hotspots not found: {exc.message}",)
+        hotspots = _measured_only(site, field_rs, threshold_v_per_m)
+        count, sugg, feat = len(hotspots), (), "readings only"
+        notes = (f"hotspots not mapped: {exc.message}",)
     if cancelled():
         return None
     return LiveResult(

@@ -206,7 +206,8 @@ class MainScreen(Screen):
         if live is None:
             text = f"hotspots (▲ ±{level}): fitting…"
         elif live.grid is None:
-            text = f"hotspots (▲ ±{level}): -\nmap after {MIN_POSITIONS_FOR_ESTIMATE} readings"
+            text = (f"hotspots (▲ ±{level}): {live.hotspot_count or '-'}\n"
+                    f"map after {MIN_POSITIONS_FOR_ESTIMATE} readings")
         else:
             text = f"hotspots (▲ ±{level}): {live.hotspot_count}"
             if live.suggestions:

@@ -133,15 +133,20 @@ def report_lines(products: Products) -> list[str]:
         f"threshold  |E| >= {findings.threshold_label} ({products.threshold_source})",
         "",
     ]
+    measured = any(h.status == "measured" for h in (*findings.hotspots, *findings.zone_hotspots))
     if findings.hotspots:
         out.append(f"Hotspots ({len(findings.hotspots)}):")
         out.append(table(hotspot_rows(findings, findings.hotspots, unit), _HOTSPOT_HEADER))
         out.append(
             "status: confirmed = a corrected reading inside reaches the level; suspected = only "
             "the interpolation says so"
-            + ("; " + MEASURED_NOTE if any(h.status == "measured" for h in findings.hotspots) else "")
+            + ("; " + MEASURED_NOTE if measured else "")
             + "."
         )
+    elif findings.unmapped_exceedances:
+        # Never "no hotspots" while a reading reaches the level (here: readings off the site).
+        out.append(f"No hotspot inside the site outline, but readings reach {findings.threshold_label} "
+                   "(listed below).")
     else:
         out.append(f"No hotspots: no reading and no part of the mapped field reaches {findings.threshold_label}.")
     if findings.zone_hotspots:
@@ -152,6 +157,8 @@ def report_lines(products: Products) -> list[str]:
         header = list(_HOTSPOT_HEADER)
         header.insert(1, "limit")
         out.append(table(rows, header))
+        if measured and not findings.hotspots:
+            out.append(f"status: {MEASURED_NOTE}.")
     if findings.zone_results:
         out += ["", "Zone results:"]
         out += [f"  {zone_sentence(r, lambda v: fmt(v, unit))}" for r in findings.zone_results]
@@ -181,7 +188,7 @@ def report_lines(products: Products) -> list[str]:
         out.append("Probable exceedance: nowhere is P(|E| >= level) >= 0.5.")
     if findings.unmapped_exceedances:
         ids = ", ".join(str(i) for i in findings.unmapped_exceedances)
-        out.append(f"Readings at or above the level outside any mapped hotspot (check them): {ids}")
+        out.append(f"Readings at or above the level outside every hotspot (check their positions): {ids}")
     out += ["", "Keep-away checks:"]
     for rule in findings.rules:
         out.append(f"  {rule.standard}: {rule.text}")

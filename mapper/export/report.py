@@ -468,10 +468,18 @@ def draw_findings_page(fig: Figure, products: Products) -> None:
 
     col.heading("Hotspots")
     if f is None:
-        col.para(f"No field model, so no hotspots: {p.no_field_reason}.")
-        exceeding = [r for r in p.readings if abs(r.value_v_per_m) >= p.threshold_v_per_m]
-        col.para(f"{len(exceeding)} of {len(p.readings)} readings are at or above the action level "
-                 f"{format_field(p.threshold_v_per_m, unit)}.")
+        used = p.used_readings
+        exceeding = [r.reading.id for r in used if abs(r.value_v_per_m) >= p.threshold_v_per_m]
+        level = format_field(p.threshold_v_per_m, unit)
+        if exceeding:
+            # A measured exceedance is a fact even without a map: never "no hotspots" here.
+            ids = ", ".join(map(str, exceeding[:12])) + (" ..." if len(exceeding) > 12 else "")
+            col.para(f"No field model ({p.no_field_reason}), so nothing is mapped; but {len(exceeding)} of "
+                     f"{len(used)} field readings reach the action level {level} (ids {ids}): each is a "
+                     "measured exceedance.")
+        else:
+            col.para(f"No field model, so no hotspots: {p.no_field_reason}.")
+            col.para(f"None of the {len(used)} field readings is at or above the action level {level}.")
     else:
         rows = _hotspot_rows(p)
         if rows:

@@ -67,11 +67,13 @@ class Hotspot:
     threshold_v_per_m : float
         Action level that defined it, V/m (> 0).
     peak_v_per_m : float
-        Signed estimate at the grid node of largest magnitude inside, V/m.
+        Signed estimate at the grid node of largest magnitude inside, V/m; for a ``measured``
+        hotspot the reading of largest magnitude inside (the map stays below the level there).
     peak_x, peak_y : float
-        Position of that node, metres.
+        Position of that node (or reading), metres.
     mean_v_per_m : float
-        Signed mean estimate over the grid nodes inside, V/m.
+        Signed mean estimate over the grid nodes inside, V/m; for a ``measured`` hotspot the
+        mean of its readings at or beyond the level.
     reading_ids : tuple of int
         Corrected readings inside (within half a grid cell of the outline).
     max_reading_v_per_m : float or None
@@ -353,8 +355,7 @@ def find_hotspots(
     ids, xyv = reading_arrays(readings)
     half_cell = 0.5 * regular_spacing(grid)
 
-    found = []
-    for polarity, poly in signed_regions(ext, z, t, clip):
+    def describe(polarity: str, poly: Polygon) -> dict:
         sign = 1.0 if polarity == "positive" else -1.0
         mask = nodes_in(poly, xx, yy)
         if not mask.any():
@@ -366,43 +367,17 @@ def find_hotspots(
             mask[i, j] = True
         values = np.where(mask, sign * z, -np.inf)
         k = np.unravel_index(int(np.argmax(values)), z.shape)
-        peak = float(z[k])
-        mean = float(z[mask].mean())
-        p_max = float(np.max(p_ext[mask])) if p_ext is not None else None
+        return dict(
+            _region_facts(polarity, poly, site, t, ids, xyv, half_cell, zone),
+            peak_v_per_m=float(z[k]),
+            peak_x=float(ext.x[k[1]]),
+            peak_y=float(ext.y[k[0]]),
+            mean_v_per_m=float(z[mask].mean()),
+            p_exceed_max=float(np.max(p_ext[mask])) if p_ext is not None else None,
+        )
 
-        near = poly.buffer(half_cell)
-        shapely.prepare(near)
-        inside = (
-            shapely.intersects_xy(near, xyv[:, 0], xyv[:, 1]) if len(xyv) else np.zeros(0, bool)
-        )
-        r_ids = tuple(int(v) for v in ids[inside])
-        r_vals = xyv[inside, 2]
-        same = r_vals[sign * r_vals > 0]
-        max_reading = float(same[np.argmax(np.abs(same))]) if same.size else None
-        confirmed = bool((sign * r_vals >= t).any())
-        asset, dist = _nearest_asset(site, poly)
-        zones = tuple(zn.name for zn in site.zones if zn.geometry.intersects(poly))
-        found.append(
-            dict(
-                polarity=polarity,
-                geometry=poly,
-                area_m2=float(poly.area),
-                threshold_v_per_m=t,
-                peak_v_per_m=peak,
-                peak_x=float(ext.x[k[1]]),
-                peak_y=float(ext.y[k[0]]),
-                mean_v_per_m=mean,
-                reading_ids=r_ids,
-                max_reading_v_per_m=max_reading,
-                status="confirmed" if confirmed else "suspected",
-                p_exceed_max=p_max,
-                nearest_asset=asset,
-                nearest_asset_m=dist,
-                zones=zones,
-                zone=zone,
-            )
-        )
-    _add_measured(found, ids, xyv, t, clip, site, zone, half_cell, xx, yy, p_ext)
+    found = [describe(polarity, poly) for polarity, poly in signed_regions(ext, z, t, clip)]
+    _add_measured(found, describe, ids, xyv, t, clip)
     found.sort(key=lambda h: (-abs(h["peak_v_per_m"]), h["peak_x"], h["peak_y"]))
     prefix = f"{zone} H" if zone else "H"
     return tuple(Hotspot(id=f"{prefix}{n}", **h) for n, h in enumerate(found, start=1))
@@ -452,41 +427,114 @@ def reading_cells(xy: np.ndarray, clip: BaseGeometry) -> list[BaseGeometry]:
     return [out_u[inverse[i]] for i in range(n)]
 
 
-def _add_measured(found, ids, xyv, t, clip, site, zone, half_cell, xx, yy, p_ext) -> None:
-    """Make every reading at or beyond +-t part of a hotspot of its polarity (in place).
+def _region_facts(
+    polarity: str,
+    poly: Polygon,
+    site: Site,
+    t: float,
+    ids: np.ndarray,
+    xyv: np.ndarray,
+    half_cell: float,
+    zone: str | None,
+) -> dict:
+    """What a hotspot's outline alone decides: readings near it, status, asset, zones."""
+    sign = 1.0 if polarity == "positive" else -1.0
+    near = poly.buffer(half_cell)
+    shapely.prepare(near)
+    inside = shapely.intersects_xy(near, xyv[:, 0], xyv[:, 1]) if len(xyv) else np.zeros(0, bool)
+    r_vals = xyv[inside, 2]
+    same = r_vals[sign * r_vals > 0]
+    asset, dist = _nearest_asset(site, poly)
+    return dict(
+        polarity=polarity,
+        geometry=poly,
+        area_m2=float(poly.area),
+        threshold_v_per_m=t,
+        reading_ids=tuple(int(v) for v in ids[inside]),
+        max_reading_v_per_m=float(same[np.argmax(np.abs(same))]) if same.size else None,
+        status="confirmed" if bool((sign * r_vals >= t).any()) else "suspected",
+        nearest_asset=asset,
+        nearest_asset_m=dist,
+        zones=tuple(zn.name for zn in site.zones if zn.geometry.intersects(poly)),
+        zone=zone,
+    )
 
-    A reading the mapped hotspots already hold is left alone. Otherwise its neighbourhood
-    (:func:`reading_cells`) joins a mapped hotspot of the same polarity that it overlaps, or,
-    merged with touching neighbourhoods of other such readings, becomes a hotspot of status
-    ``measured``.
+
+#: A reading this close to a hotspot's outline is inside it, metres (rounding of the outline's
+#: vertices; our own choice, no source).
+INSIDE_TOLERANCE_M = 1e-6
+
+
+def _holding(found: list[dict], polarity: str, x: float, y: float) -> bool:
+    """Whether a hotspot of ``polarity`` in ``found`` contains the point (x, y), metres."""
+    pt = shapely.Point(x, y)
+    return any(h["polarity"] == polarity and shapely.dwithin(h["geometry"], pt, INSIDE_TOLERANCE_M)
+               for h in found)
+
+
+def _join_mapped(found: list[dict], describe, polarity: str, cell: BaseGeometry) -> bool:
+    """Union a reading's neighbourhood into the mapped hotspots of ``polarity`` it meets.
+
+    All mapped hotspots it meets become one when their union with it is one polygon; otherwise
+    it joins the first one it makes one polygon with. The joined hotspot is described again
+    from the map (peak, mean, readings, status, nearest asset, zones). Returns whether it joined.
+    """
+    mapped = [h for h in found if h["polarity"] == polarity and h["status"] != "measured"
+              and h["geometry"].intersects(cell)]
+    if not mapped:
+        return False
+    choices = [mapped] + [[h] for h in mapped] if len(mapped) > 1 else [mapped]
+    for targets in choices:
+        merged = shapely.union_all([*(h["geometry"] for h in targets), cell])
+        if merged.geom_type == "Polygon":
+            found[:] = [h for h in found if all(h is not x for x in targets)]
+            found.append(describe(polarity, merged))
+            return True
+    return False
+
+
+def _add_measured(found: list[dict], describe, ids: np.ndarray, xyv: np.ndarray, t: float,
+                  clip: BaseGeometry) -> None:
+    """Make every reading at or beyond +-t lie inside a hotspot of its polarity (in place).
+
+    A reading a hotspot of its polarity already contains is left alone. Otherwise its
+    neighbourhood (:func:`reading_cells`) joins the mapped hotspots of the same polarity that it
+    meets (:func:`_join_mapped`), or, merged with touching neighbourhoods of other such readings,
+    becomes a hotspot of status ``measured`` whose peak is its reading of largest magnitude and
+    whose mean is that of its exceeding readings (the map stays below the level there).
+
+    Parameters
+    ----------
+    found : list of dict
+        Hotspot fields so far (without ids); extended and edited in place.
+    describe : callable
+        ``describe(polarity, polygon) -> dict`` of hotspot fields for an outline.
+    ids, xyv : ndarray
+        Usable readings (:func:`reading_arrays`): ids and ``x, y, value`` rows, metres and V/m.
+    t : float
+        Action level, V/m.
+    clip : shapely geometry
+        Where hotspots may lie (the outline, or a zone inside it); readings outside are skipped.
     """
     if not len(xyv):
         return
-    inside_clip = shapely.intersects_xy(clip.buffer(1e-9), xyv[:, 0], xyv[:, 1])
+    inside_clip = shapely.intersects_xy(clip.buffer(INSIDE_TOLERANCE_M), xyv[:, 0], xyv[:, 1])
     cells = None
     for polarity, sign in (("positive", 1.0), ("negative", -1.0)):
         exceed = np.flatnonzero(inside_clip & (sign * xyv[:, 2] >= t))
-        held = {rid for h in found if h["polarity"] == polarity for rid in h["reading_ids"]
-                if sign * xyv[ids == rid, 2].max(initial=-np.inf) >= t}
-        todo = [k for k in exceed if int(ids[k]) not in held]
+        todo = [k for k in exceed if not _holding(found, polarity, xyv[k, 0], xyv[k, 1])]
         if not todo:
             continue
         if cells is None:
             cells = reading_cells(xyv[:, :2], clip)
         groups: list[tuple[BaseGeometry, list[int]]] = []
         for k in todo:
+            if _holding(found, polarity, xyv[k, 0], xyv[k, 1]):
+                continue  # a neighbour's cell already joined a mapped hotspot around it
             cell = cells[k]
             if cell.is_empty:
                 cell = polygonal(shapely.Point(xyv[k, :2]).buffer(MEASURED_MIN_RADIUS_M, 4).intersection(clip))
-            target = next((h for h in found if h["polarity"] == polarity and h["geometry"].intersects(cell)
-                           and h["geometry"].union(cell).geom_type == "Polygon"), None)
-            if target is not None:
-                target["geometry"] = target["geometry"].union(cell)
-                target["area_m2"] = float(target["geometry"].area)
-                target["reading_ids"] = tuple(sorted({*target["reading_ids"], int(ids[k])}))
-                if target["max_reading_v_per_m"] is None or abs(xyv[k, 2]) > abs(target["max_reading_v_per_m"]):
-                    target["max_reading_v_per_m"] = float(xyv[k, 2])
-                target["status"] = "confirmed"
+            if _join_mapped(found, describe, polarity, cell):
                 continue
             touching = [g for g in groups if g[0].intersects(cell)]
             geom = shapely.union_all([cell, *[g[0] for g in touching]])
@@ -494,24 +542,67 @@ def _add_measured(found, ids, xyv, t, clip, site, zone, half_cell, xx, yy, p_ext
             groups = [g for g in groups if all(g is not x for x in touching)] + [(geom, members)]
         for geom, members in groups:
             for poly in polygonal(geom).geoms:
-                mem = [m for m in members if poly.buffer(1e-6).intersects(shapely.Point(xyv[m, :2]))]
+                mem = [m for m in members
+                       if shapely.dwithin(poly, shapely.Point(xyv[m, :2]), INSIDE_TOLERANCE_M)]
                 if not mem:
                     continue
                 vals = xyv[mem, 2]
                 top = mem[int(np.argmax(sign * vals))]
-                near = poly.buffer(half_cell)
-                all_in = shapely.intersects_xy(near, xyv[:, 0], xyv[:, 1])
-                mask = nodes_in(poly, xx, yy)
-                p_max = float(np.max(p_ext[mask])) if p_ext is not None and mask.any() else None
-                asset, dist = _nearest_asset(site, poly)
-                found.append(dict(
-                    polarity=polarity, geometry=poly, area_m2=float(poly.area), threshold_v_per_m=t,
+                h = describe(polarity, poly)
+                h.update(
                     peak_v_per_m=float(xyv[top, 2]), peak_x=float(xyv[top, 0]), peak_y=float(xyv[top, 1]),
-                    mean_v_per_m=float(np.mean(vals)), reading_ids=tuple(int(v) for v in ids[all_in]),
-                    max_reading_v_per_m=float(xyv[top, 2]), status="measured", p_exceed_max=p_max,
-                    nearest_asset=asset, nearest_asset_m=dist,
-                    zones=tuple(zn.name for zn in site.zones if zn.geometry.intersects(poly)), zone=zone,
-                ))
+                    mean_v_per_m=float(np.mean(vals)), max_reading_v_per_m=float(xyv[top, 2]),
+                    status="measured",
+                )
+                found.append(h)
+
+
+def reading_hotspots(
+    site: Site,
+    threshold_v_per_m: float,
+    readings: Sequence[CorrectedReading],
+    *,
+    region: BaseGeometry | None = None,
+    zone: str | None = None,
+) -> tuple[Hotspot, ...]:
+    """Hotspots from the readings alone, for when there is no field model (yet).
+
+    Every usable reading at or beyond +-t gets its neighbourhood (:func:`reading_cells`) as a
+    hotspot of status ``measured``, touching neighbourhoods of one polarity merged, as
+    :func:`find_hotspots` does where the map stays below the level.
+
+    Parameters
+    ----------
+    site : Site
+        The site, metres.
+    threshold_v_per_m : float
+        Action level t, V/m, > 0.
+    readings : sequence of CorrectedReading
+        Corrected readings; only usable field readings count.
+    region : shapely geometry, optional
+        Look only inside this part of the site; default the whole outline.
+    zone : str, optional
+        Name recorded in :attr:`Hotspot.zone` and used as the id prefix.
+
+    Returns
+    -------
+    tuple of Hotspot
+        Sorted by decreasing peak magnitude; ``p_exceed_max`` is ``None``.
+    """
+    t = check_threshold(threshold_v_per_m)
+    clip = site.outline if region is None else polygonal(region.intersection(site.outline))
+    ids, xyv = reading_arrays(readings)
+
+    def describe(polarity: str, poly: Polygon) -> dict:
+        facts = _region_facts(polarity, poly, site, t, ids, xyv, 0.0, zone)
+        return dict(facts, peak_v_per_m=np.nan, peak_x=np.nan, peak_y=np.nan, mean_v_per_m=np.nan,
+                    p_exceed_max=None)
+
+    found: list[dict] = []
+    _add_measured(found, describe, ids, xyv, t, clip)
+    found.sort(key=lambda h: (-abs(h["peak_v_per_m"]), h["peak_x"], h["peak_y"]))
+    prefix = f"{zone} H" if zone else "H"
+    return tuple(Hotspot(id=f"{prefix}{n}", **h) for n, h in enumerate(found, start=1))
 
 
 def zone_hotspots(
@@ -617,25 +708,32 @@ def probable_exceedance(
 def exceedances_outside(
     hotspots: Sequence[Hotspot], readings: Sequence[CorrectedReading], threshold_v_per_m: float
 ) -> tuple[int, ...]:
-    """Ids of readings at or beyond +-t that lie in no hotspot (the map smoothed them away).
+    """Ids of readings at or beyond +-t that lie in no hotspot of their polarity.
+
+    :func:`find_hotspots` puts every such reading inside the site into a hotspot, so this is
+    empty for its output; it stays as a check (and catches readings placed outside the site).
 
     Parameters
     ----------
     hotspots : sequence of Hotspot
         Hotspots at ``threshold_v_per_m``.
     readings : sequence of CorrectedReading
-        Corrected readings.
+        Corrected readings; only usable field readings count.
     threshold_v_per_m : float
         Action level t, V/m.
     """
     t = check_threshold(threshold_v_per_m)
-    listed = {(rid, h.polarity) for h in hotspots for rid in h.reading_ids}
     ids, xyv = reading_arrays(readings)
-    return tuple(
-        int(i)
-        for i, v in zip(ids, xyv[:, 2], strict=True)
-        if abs(v) >= t and (int(i), "positive" if v > 0 else "negative") not in listed
-    )
+    out = []
+    for i, (x, y, v) in zip(ids, xyv, strict=True):
+        if abs(v) < t:
+            continue
+        polarity = "positive" if v > 0 else "negative"
+        pt = shapely.Point(x, y)
+        if not any(h.polarity == polarity and shapely.dwithin(h.geometry, pt, INSIDE_TOLERANCE_M)
+                   for h in hotspots):
+            out.append(int(i))
+    return tuple(out)
 
 
 __all__ = [
@@ -650,6 +748,7 @@ __all__ = [
     "find_hotspots",
     "probable_exceedance",
     "reading_cells",
+    "reading_hotspots",
     "signed_regions",
     "zone_hotspots",
 ]

@@ -14,7 +14,12 @@ import numpy as np
 import pytest
 import shapely
 
-from mapper.features.hotspots import exceedances_outside, find_hotspots, zone_hotspots
+from mapper.features.hotspots import (
+    exceedances_outside,
+    find_hotspots,
+    reading_cells,
+    zone_hotspots,
+)
 from mapper.field import Variogram, build_field
 from mapper.physics.images import PointCharge, field_z
 from mapper.readings.model import CorrectedReading, Reading
@@ -151,3 +156,83 @@ async def test_hotspot_screen_says_which_map_it_shows():
         await pilot.pause()
         title = str(app.screen.query_one("#hotspot-title").render())
         assert "live map" in title and "fast ordinary kriging" in title and "stored field model" in title
+
+
+def _inside_own_polarity(hs, xy, v, level):
+    """Every reading at or beyond +-level lies inside a hotspot of its sign (to 1e-6 m)."""
+    for (x, y), e in zip(xy, v, strict=True):
+        if abs(e) >= level:
+            pol = "positive" if e > 0 else "negative"
+            assert any(h.polarity == pol and h.geometry.distance(shapely.Point(x, y)) <= 1e-6 for h in hs), (x, y, e)
+
+
+def test_reading_beside_a_mapped_hotspot_joins_it():
+    # A strong charge (Griffiths sec. 3.2.1, images) gives a mapped hotspot; a spike two readings
+    # away whose own cell overlaps it joins that hotspot instead of making a second one.
+    xs, ys = np.meshgrid(np.arange(1.25, 30, 2.5), np.arange(1.25, 20, 2.5))
+    xy = np.column_stack([xs.ravel(), ys.ravel()])
+    v = field_z([PointCharge(15, 10, 2.0, 6e-6)], xy[:, 0], xy[:, 1], 1.0)
+    g = build_field(xy, v, BOX, method="kriging", cell_m=0.4)
+    site = Site("box", BOX)
+    mapped = find_hotspots(g, site, LEVEL, [CorrectedReading(Reading(i + 1, x, y, e, e, "V/m", T0), e)
+                                            for i, ((x, y), e) in enumerate(zip(xy, v, strict=True))])
+    (m,) = [h for h in mapped if h.polarity == "negative"]
+    # the first reading outside the mapped hotspot whose cell overlaps it
+    cells = reading_cells(xy, BOX)
+    k = next(i for i in range(len(xy)) if not m.geometry.contains(shapely.Point(xy[i]))
+             and cells[i].intersection(m.geometry).area > 0)
+    v = v.copy()
+    v[k] = -1.5 * LEVEL
+    rows = [CorrectedReading(Reading(i + 1, x, y, e, e, "V/m", T0), e) for i, ((x, y), e) in enumerate(zip(xy, v, strict=True))]
+    hs = find_hotspots(g, site, LEVEL, rows)
+    neg = [h for h in hs if h.polarity == "negative"]
+    assert len(neg) == 1 and neg[0].status == "confirmed" and k + 1 in neg[0].reading_ids
+    assert neg[0].geometry.area == pytest.approx(m.geometry.union(cells[k]).area)
+    _inside_own_polarity(hs, xy, v, LEVEL)
+    assert exceedances_outside(hs, rows, LEVEL) == ()
+
+
+def test_exceedances_outside_checks_the_outline_not_the_id_list():
+    # A hotspot listing a reading's id but not containing its position does not count.
+    from mapper.features.hotspots import Hotspot
+
+    r = CorrectedReading(Reading(1, 5.0, 5.0, 2 * LEVEL, 2 * LEVEL, "V/m", T0), 2 * LEVEL)
+    far = Hotspot("H1", "positive", shapely.box(20, 10, 22, 12), 4.0, LEVEL, LEVEL, 21, 11, LEVEL, (1,),
+                  2 * LEVEL, "confirmed", None, None, None, ())
+    assert exceedances_outside([far], [r], LEVEL) == (1,)
+    near = Hotspot("H1", "positive", shapely.box(4, 4, 5, 5), 1.0, LEVEL, LEVEL, 4.5, 4.5, LEVEL, (1,),
+                   2 * LEVEL, "confirmed", None, None, None, ())
+    assert exceedances_outside([near], [r], LEVEL) == ()  # on the outline counts as inside
+    neg = Hotspot("H1", "negative", shapely.box(4, 4, 6, 6), 4.0, LEVEL, -LEVEL, 5, 5, -LEVEL, (1,),
+                  None, "confirmed", None, None, None, ())
+    assert exceedances_outside([neg], [r], LEVEL) == (1,)  # the other polarity does not hold it
+
+
+def test_readings_alone_make_measured_hotspots_before_there_is_a_map():
+    # Three readings, too few for a map (the app's MIN_POSITIONS_FOR_ESTIMATE is 4): the one at
+    # the level is still a hotspot, in the library and in the app's live count.
+    from mapper.app.live import refit
+    from mapper.features.hotspots import reading_hotspots
+
+    pts = [(5.0, 5.0, 100.0), (7.5, 5.0, -LEVEL), (10.0, 5.0, 200.0)]
+    rows = [CorrectedReading(Reading(i + 1, x, y, e, e, "V/m", T0), e) for i, (x, y, e) in enumerate(pts)]
+    (h,) = reading_hotspots(Site("box", BOX), LEVEL, rows)
+    assert (h.id, h.polarity, h.status, h.peak_v_per_m) == ("H1", "negative", "measured", -LEVEL)
+    assert h.geometry.contains(shapely.Point(7.5, 5.0)) and h.reading_ids == (2,)
+    # half the 2.5 m spacing on each side (our own choice of neighbourhood, no source)
+    assert h.geometry.bounds == pytest.approx((6.25, 3.75, 8.75, 6.25))
+    result = refit([r.reading for r in rows], Site("box", BOX), LEVEL, planned=())
+    assert result is not None and result.grid is None and result.hotspot_count == 1
+
+
+def test_every_exceeding_reading_is_inside_over_many_spikes():
+    # Spikes of both signs scattered over the quiet layout, alone, in pairs and on the edge.
+    spikes = {0: 1.1 * LEVEL, 12: -LEVEL, 37: 1.3 * LEVEL, 38: 1.05 * LEVEL, 50: -2 * LEVEL, 51: 2 * LEVEL,
+              95: LEVEL}
+    xy, v, rows = _readings(spikes)
+    g = _grid(xy, v)
+    hs = find_hotspots(g, Site("box", BOX), LEVEL, rows)
+    _inside_own_polarity(hs, xy, v, LEVEL)
+    assert exceedances_outside(hs, rows, LEVEL) == ()
+    assert [h.id for h in hs] == [f"H{n}" for n in range(1, len(hs) + 1)]
+    assert [abs(h.peak_v_per_m) for h in hs] == sorted((abs(h.peak_v_per_m) for h in hs), reverse=True)
