@@ -371,7 +371,11 @@ class PhysicalModel:
         return np.column_stack([b, *g]) if g else b
 
     def _beta(self, shapes, sigma):
-        a = self._design(shapes, self.xy_[:, 0], self.xy_[:, 1], self.z_) / sigma[:, None]
+        return self._solve(self._design(shapes, self.xy_[:, 0], self.xy_[:, 1], self.z_), sigma)
+
+    def _solve(self, design, sigma):
+        """Weighted least-squares charges and background for a design at the readings."""
+        a = design / sigma[:, None]
         col = np.linalg.norm(a, axis=0)
         col[col == 0] = 1.0
         coef, *_ = np.linalg.lstsq(a / col, self.values_ / sigma, rcond=None)
@@ -449,8 +453,8 @@ class PhysicalModel:
     def _score(self, shapes, sigma) -> float:
         """Bayesian information criterion of a set of sources (weighted residuals)."""
         n = self.values_.shape[0]
-        r = self.values_ - self._predict_mean(shapes, self._beta(shapes, sigma), self.xy_[:, 0],
-                                              self.xy_[:, 1], self.z_)
+        design = self._design(shapes, self.xy_[:, 0], self.xy_[:, 1], self.z_)
+        r = self.values_ - design @ self._solve(design, sigma)
         # Floor: a fit cannot be better than the readings' resolution (1e-6 of the largest).
         rss = max(float(np.sum((r / sigma) ** 2)), float(np.sum((self._floor / sigma) ** 2)))
         p = 3 + sum(1 + s.size for s in shapes)

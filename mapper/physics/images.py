@@ -135,22 +135,12 @@ def field_z(sources: Iterable[Source], x, y, z) -> np.ndarray:
         E_z, V/m, positive upward.
     """
     x, y, z = np.broadcast_arrays(np.asarray(x, float), np.asarray(y, float), np.asarray(z, float))
-    out = np.zeros(x.shape)
-    flat_x, flat_y, flat_z = x.ravel(), y.ravel(), z.ravel()
-    flat = out.ravel()
+    fx, fy, fz = (np.ascontiguousarray(a).ravel() for a in (x, y, z))
+    out = np.zeros(fx.shape)
     for source in sources:
         sx, sy, sh, sq = source.nodes()
-        for start in range(0, flat_x.size, 4096):
-            sl = slice(start, start + 4096)
-            dx = flat_x[sl, None] - sx[None, :]
-            dy = flat_y[sl, None] - sy[None, :]
-            r2 = dx * dx + dy * dy
-            above = flat_z[sl, None] - sh[None, :]
-            below = flat_z[sl, None] + sh[None, :]
-            real = above / (r2 + above * above) ** 1.5
-            image = below / (r2 + below * below) ** 1.5
-            flat[sl] += _K * ((real - image) * sq[None, :]).sum(axis=1)
-    return flat.reshape(x.shape)
+        out += unit_kernel(sx, sy, sh, sq, fx, fy, fz)  # node weights are the charges themselves
+    return out.reshape(x.shape)
 
 
 def unit_kernel(sx, sy, sh, w, x, y, z) -> np.ndarray:
