@@ -132,7 +132,8 @@ def find_live_features(
         What found them.
     """
     hotspots = find_hotspots(grid, site, threshold_v_per_m, readings)
-    advice = advise_sampling(grid, site, readings, threshold_v_per_m, count=suggestions, planned=planned)
+    advice = advise_sampling(grid, site, readings, threshold_v_per_m, count=suggestions, planned=planned,
+                             unit=unit)
     sugg = tuple(Suggested(s.point, s.x, s.y, s.why) for s in advice)
     return hotspots, len(hotspots), sugg, "map features"
 
@@ -152,6 +153,7 @@ def refit(
     planned: Sequence[PlanPoint],
     cancelled: Callable[[], bool] = lambda: False,
     meters: Mapping[str, MeterProfile] | None = None,
+    unit: str = "V/m",
 ) -> LiveResult | None:
     """One live refit: field, hotspots and suggestions from the current readings.
 
@@ -172,6 +174,8 @@ def refit(
         Checked between stages; the refit gives up (returns ``None``) once it is true.
     meters : mapping of str to MeterProfile, optional
         The survey's meter profiles.
+    unit : str
+        Display unit of the suggestions' sentences.
     """
     t0 = time.perf_counter()
     try:
@@ -190,7 +194,7 @@ def refit(
                           seconds=time.perf_counter() - t0)
     notes: tuple[str, ...] = ()
     try:
-        hotspots, count, sugg, feat = find_live_features(grid, site, field_rs, threshold_v_per_m, planned)
+        hotspots, count, sugg, feat = find_live_features(grid, site, field_rs, threshold_v_per_m, planned, unit)
     except MapperError as exc:
         hotspots = _measured_only(site, field_rs, threshold_v_per_m)
         count, sugg, feat = len(hotspots), (), "readings only"

@@ -22,11 +22,12 @@ from mapper.app.keys import bindings
 from mapper.app.legend import Legend, legend_text
 from mapper.app.live import MIN_POSITIONS_FOR_ESTIMATE, LiveResult, refit
 from mapper.app.map_view import MapView
-from mapper.app.palette import FEATURE_COLOURS, diverging, hex_rgb
+from mapper.app.palette import FEATURE_COLOURS, hex_rgb
 from mapper.app.raster import LAYER_TITLES, LAYERS, Markers
 from mapper.app.session import DRY_AIR_RH_PERCENT, WalkSession, parse_conditions, parse_xy
 from mapper.corrections.pipeline import load_meters
 from mapper.errors import MapperError
+from mapper.features.colour_scale import colours_rgb
 from mapper.nice import nice_ceiling
 from mapper.readings.serial_meter import MeterLine, SerialMeterReader
 from mapper.survey.store import utc_now
@@ -247,26 +248,18 @@ class MainScreen(Screen):
         self.query_one("#entry-row").set_class(self.armed != "field", "armed")
 
     def scale(self) -> float:
-        """Full-colour magnitude for the map and legend, V/m (a round number)."""
+        """What the map's colours are scaled to, V/m.
+
+        The signed layers use one fixed scale tied to the action level (the same colours as the
+        report and the GeoPackage styles, whatever has been read so far); the uncertainty layer
+        spans its values (a round number above the largest).
+        """
         s = self.session
-        values = [abs(r.value_v_per_m) for r in s.field_readings()]
-        biggest = max(values, default=0.0)
         grid = self.live.grid if self.live else None
-        if self.map_layer == "std":
-            if grid is None:
-                return 1.0
+        if self.map_layer == "std" and grid is not None:
             std = np.asarray(grid.std, float)
             return nice_ceiling(float(np.nanmax(std))) if np.isfinite(std).any() else 1.0
-        if grid is not None and self.map_layer == "estimate":
-            est = np.abs(np.asarray(grid.estimate, float))
-            est = est[np.isfinite(est)]
-            if est.size:
-                # A 98th percentile keeps one extreme cell from washing out the rest; the
-                # threshold stays on the ramp so exceedances read as full colour.
-                biggest = float(np.percentile(est, 98))
-        elif values:
-            biggest = float(np.percentile(values, 98))
-        return nice_ceiling(max(biggest, s.threshold_v_per_m))
+        return s.threshold_v_per_m
 
     def _draw_map(self) -> None:
         s = self.session
@@ -303,14 +296,14 @@ class MainScreen(Screen):
         if done.any():
             if layer == "readings":
                 values = np.array([means[p.label] for p, d in zip(s.points, done, strict=True) if d])
-                rgb[done] = diverging(sign * values, scale)
+                rgb[done] = colours_rgb(sign * values, s.threshold_v_per_m)
             else:
                 rgb[done] = hex_rgb(FEATURE_COLOURS["visited"])
         free = [r for r in s.field_readings() if r.point is None]
         if free:
             fxy = np.array([(r.x, r.y) for r in free], float)
             if layer == "readings":
-                frgb = diverging(sign * np.array([r.value_v_per_m for r in free]), scale)
+                frgb = colours_rgb(sign * np.array([r.value_v_per_m for r in free]), s.threshold_v_per_m)
             else:
                 frgb = np.tile(np.array(hex_rgb(FEATURE_COLOURS["free"]), np.uint8), (len(free), 1))
             xy, rgb = np.vstack([xy, fxy]), np.vstack([rgb, frgb])
@@ -359,7 +352,8 @@ class MainScreen(Screen):
         worker = get_current_worker()
         s = self.session
         result = refit(
-            readings, s.site, threshold_v_per_m, s.points, cancelled=lambda: worker.is_cancelled, meters=meters
+            readings, s.site, threshold_v_per_m, s.points, cancelled=lambda: worker.is_cancelled, meters=meters,
+            unit=s.display_unit,
         )
         if result is not None and not worker.is_cancelled:
             self.app.call_from_thread(self._apply_live, result)

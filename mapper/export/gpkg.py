@@ -52,8 +52,10 @@ def layer_styles(products: Products) -> list[st.LayerStyle]:
     f = products.findings
     if f is not None:
         out += [
-            st.LayerStyle("readings", st.readings_qml(f.levels), "readings graded on the band ramp"),
-            st.LayerStyle("bands", st.bands_qml(f.bands, f.levels), "diverging ramp: blue negative, red positive"),
+            st.LayerStyle("readings", st.readings_qml(f.threshold_v_per_m, products.display_unit),
+                          "readings graded on the action-level scale"),
+            st.LayerStyle("bands", st.bands_qml(f.bands, f.threshold_v_per_m),
+                          "action-level scale: blue negative, red positive, neutral near zero"),
             st.LayerStyle("contours", st.contours_qml(), "contours labelled with their level"),
             st.LayerStyle("hotspots", st.hotspots_qml(), "hotspots outlined and labelled with ids"),
             st.LayerStyle("probable_exceedance",

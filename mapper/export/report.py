@@ -21,7 +21,7 @@ import numpy as np
 import shapely
 from matplotlib.backends.backend_pdf import PdfPages
 from matplotlib.cm import ScalarMappable
-from matplotlib.colors import BoundaryNorm, LinearSegmentedColormap, ListedColormap, Normalize
+from matplotlib.colors import BoundaryNorm, LinearSegmentedColormap, ListedColormap
 from matplotlib.figure import Figure
 from matplotlib.lines import Line2D
 from matplotlib.patches import FancyBboxPatch, Patch, PathPatch, Rectangle
@@ -36,12 +36,14 @@ from mapper.errors import MapperError
 from mapper.export import styles as st
 from mapper.export.pipeline import Products
 from mapper.features import CAUTIONS, LIMITS_ARE_DEFAULTS
-from mapper.features.contours import Levels, nice_levels
+from mapper.features import colour_scale as cs
+from mapper.features.colour_scale import scale_levels
+from mapper.features.contours import Levels
 from mapper.features.hotspots import MEASURED_NOTE
 from mapper.features.sources import LIMITATIONS, source_records
 from mapper.features.zone_results import zone_sentence
 from mapper.survey.store import to_utc_text, utc_now
-from mapper.units import format_field, from_si
+from mapper.units import field_text_in, format_field, from_si, plain_number
 
 #: A4 landscape, inches.
 PAGE_SIZE_IN = (11.69, 8.27)
@@ -207,8 +209,21 @@ def _band_cmap(levels: Levels, colors: Sequence[str]) -> tuple[ListedColormap, B
     return cmap, BoundaryNorm(bounds, cmap.N), bounds
 
 
-def _value_cmap() -> LinearSegmentedColormap:
-    return LinearSegmentedColormap.from_list("mapper_diverging", [((t + 1) / 2, c) for t, c in st.RAMP])
+def std_limits(values: np.ndarray) -> tuple[float, float]:
+    """Colour limits of an uncertainty map: the 2nd and 98th percentiles of its values.
+
+    One extreme cell at a corner must not leave the rest of the map one flat colour, so the
+    colours span the values present (beyond the limits the colour bar's ends extend).
+    """
+    v = np.asarray(values, dtype=float)
+    v = v[np.isfinite(v)]
+    if v.size == 0:
+        return 0.0, 1.0
+    lo, hi = (float(x) for x in np.percentile(v, [2.0, 98.0]))
+    if hi <= lo:
+        pad = max(abs(hi) * 0.05, 1e-12)
+        lo, hi = lo - pad, hi + pad
+    return lo, hi
 
 
 def _std_cmap() -> LinearSegmentedColormap:
@@ -238,10 +253,12 @@ class _Column:
             self.y -= self._dy(size)
 
     def row(self, cells: Sequence[str], stops: Sequence[float], size: float = 7.5, bold: bool = False) -> None:
+        """One table row; a cell holding line breaks (a wrapped name) makes the row taller."""
         for cell, stop in zip(cells, stops, strict=True):
-            self.fig.text(self.x + stop, self.y, cell, fontsize=size, va="top",
+            self.fig.text(self.x + stop, self.y, cell, fontsize=size, va="top", linespacing=1.1,
                           fontweight="bold" if bold else "normal")
-        self.y -= self._dy(size)
+        lines = max((cell.count("\n") + 1 for cell in cells), default=1)
+        self.y -= self._dy(size) * (1 + 0.8 * (lines - 1))
 
     def gap(self, size: float = 4.0) -> None:
         self.y -= self._dy(size)
@@ -328,7 +345,7 @@ def draw_map_page(fig: Figure, products: Products) -> None:
     bounds = _frame_axes(ax, p)
     readings = list(p.readings)
     if f is not None:
-        colors = st.band_colors(f.bands, f.levels)
+        colors = st.band_colors(f.bands, f.threshold_v_per_m)
         for band, color in zip(f.bands, colors, strict=True):
             _fill(ax, band.geometry, facecolor=color, edgecolor=color, linewidth=0.3, zorder=1)
         span = bounds[2] - bounds[0]
@@ -342,10 +359,11 @@ def draw_map_page(fig: Figure, products: Products) -> None:
             _lines(ax, region.geometry, color=st.PROBABLE_COLOR, linewidth=1.3, linestyle=(0, (2, 2)), zorder=7)
         levels = f.levels
     else:
-        colors = None
         values = [r.value_v_per_m for r in readings] or [0.0, 1.0]
         lo, hi = min(values), max(values)
-        levels = nice_levels(lo, hi if hi > lo else lo + 1.0, unit=unit, count=6)
+        levels = Levels(scale_levels(p.threshold_v_per_m, lo, hi if hi > lo else lo + 1.0), unit)
+        edges = (-math.inf, *levels.values_v_per_m, math.inf)
+        colors = [cs.interval_hex(a, b, p.threshold_v_per_m) for a, b in zip(edges[:-1], edges[1:], strict=True)]
         _fill(ax, p.site.outline, facecolor="#f2f2f2", edgecolor="none", zorder=1)
     _draw_site(ax, p)
     if readings:
@@ -354,10 +372,8 @@ def draw_map_page(fig: Figure, products: Products) -> None:
             ax.scatter(xy[:, 0], xy[:, 1], s=5, c="#111111", edgecolors="white", linewidths=0.3, zorder=10,
                        label="reading")
         else:
-            vals = np.array([from_si(r.value_v_per_m, unit) for r in readings])
-            scale = max(abs(v) for v in levels.display_values) or 1.0
-            ax.scatter(xy[:, 0], xy[:, 1], s=22, c=vals, cmap=_value_cmap(), vmin=-scale, vmax=scale,
-                       edgecolors="#111111", linewidths=0.4, zorder=10)
+            dots = [cs.colour_hex(r.value_v_per_m, p.threshold_v_per_m) for r in readings]
+            ax.scatter(xy[:, 0], xy[:, 1], s=22, c=dots, edgecolors="#111111", linewidths=0.4, zorder=10)
     if f is not None:
         for h in (*f.hotspots, *f.zone_hotspots):
             color = st.HOTSPOT_COLORS.get(h.polarity, "#000000")
@@ -383,29 +399,19 @@ def draw_map_page(fig: Figure, products: Products) -> None:
         _north_arrow(nax, p.crs.site_north(c.x, c.y))
         fig.text(0.825, 0.785, "true north", fontsize=7, va="top", ha="center", color="#333333")
     cax = fig.add_axes((0.80, 0.36, 0.022, 0.38))
-    if colors is not None:
-        cmap, norm, ticks = _band_cmap(levels, colors)
-        cb = fig.colorbar(ScalarMappable(norm=norm, cmap=cmap), cax=cax, extend="both",
-                          ticks=ticks, spacing="uniform")
-        title = f"field estimate ({unit})"
-    else:
-        scale = max(abs(v) for v in levels.display_values) or 1.0
-        cb = fig.colorbar(ScalarMappable(norm=Normalize(-scale, scale),
-                                                       cmap=_value_cmap()), cax=cax)
-        title = f"reading ({unit})"
+    cmap, norm, ticks = _band_cmap(levels, colors)
+    cb = fig.colorbar(ScalarMappable(norm=norm, cmap=cmap), cax=cax, extend="both",
+                      ticks=ticks, spacing="uniform")
+    title = f"field estimate ({unit})" if f is not None else f"reading ({unit})"
     cb.ax.tick_params(labelsize=7.5)
-    cb.ax.yaxis.set_major_formatter(FuncFormatter(lambda v, _: f"{v:g}"))
+    cb.ax.yaxis.set_major_formatter(FuncFormatter(lambda v, _: plain_number(v, 4)))
     cb.set_label(title, fontsize=8.5)
     t = from_si(p.threshold_v_per_m, unit)
-    lo_b, hi_b = cax.get_ylim()
     for level in (t, -t):
-        if colors is not None:
-            pos = np.interp(level, ticks, np.linspace(0, 1, len(ticks))) if ticks[0] <= level <= ticks[-1] else None
-            if pos is not None:
-                y = lo_b + pos * (hi_b - lo_b)
-                cax.axhline(y, color="black", linewidth=1.6)
-                cax.text(-0.4, y, "action level", transform=cax.get_yaxis_transform(), fontsize=6.5,
-                         va="center", ha="right")
+        if ticks[0] <= level <= ticks[-1]:  # the colour bar's long axis is in data units
+            cax.axhline(level, color="black", linewidth=1.6)
+            cax.text(-0.4, level, "action level", transform=cax.get_yaxis_transform(), fontsize=6.5,
+                     va="center", ha="right")
     fig.text(0.80, 0.335, "red: positive, field pointing up\n(away from the floor)\n"
              "blue: negative, pointing down", fontsize=7, va="top", color="#333333", linespacing=1.3)
     handles = [
@@ -433,7 +439,7 @@ def _hotspot_rows(products: Products) -> list[list[str]]:
             h.id, h.polarity, h.status, f"{h.area_m2:.1f}", format_field(h.peak_v_per_m, unit, 3),
             "-" if h.max_reading_v_per_m is None else format_field(h.max_reading_v_per_m, unit, 3),
             "-" if h.p_exceed_max is None else f"{h.p_exceed_max:.2f}", str(len(h.reading_ids)),
-            textwrap.shorten(near, 22, placeholder="…"),
+            textwrap.fill(near, 24),
         ])
     return rows
 
@@ -559,7 +565,7 @@ def draw_findings_page(fig: Figure, products: Products) -> None:
         col.para(p.no_field_reason or "No field model.", 7.5)
     else:
         g = p.grid
-        col.para(f"{g.method}, cell {g.cell_m:g} m. {g.reason}", 7.5)
+        col.para(f"{g.method}, cell {g.cell_m:g} m. {field_text_in(g.reason, unit)}", 7.5)
         if g.params.get("variogram_text"):
             col.para(f"Variogram: {g.params['variogram_text']}.", 7.5)
         table = g.cv_table or ((g.cv,) if g.cv else ())
@@ -594,16 +600,18 @@ def draw_findings_page(fig: Figure, products: Products) -> None:
 
     # Right: the standard deviation map.
     ax = fig.add_axes((0.60, 0.40, 0.36, 0.46))
-    ax.set_title("Uncertainty: standard deviation of the estimate", fontsize=9.5, loc="left",
+    ax.set_title("Uncertainty of a new reading (standard deviation)", fontsize=9.5, loc="left",
                  color="#1b3a6b", fontweight="bold")
     _frame_axes(ax, p)
     g = p.grid
     if g is not None and np.isfinite(g.std).any():
         std = np.ma.masked_invalid(from_si(1.0, unit) * np.asarray(g.std, dtype=float))
+        vmin, vmax = std_limits(std.compressed())
         c = g.cell_m
         mesh = ax.pcolormesh(np.append(g.x - c / 2, g.x[-1] + c / 2), np.append(g.y - c / 2, g.y[-1] + c / 2),
-                             std, cmap=_std_cmap(), vmin=0.0, shading="flat", zorder=1, rasterized=True)
-        cb = fig.colorbar(mesh, ax=ax, fraction=0.04, pad=0.02)
+                             std, cmap=_std_cmap(), vmin=vmin, vmax=vmax, shading="flat", zorder=1,
+                             rasterized=True)
+        cb = fig.colorbar(mesh, ax=ax, fraction=0.04, pad=0.02, extend="both")
         cb.set_label(f"standard deviation ({unit})", fontsize=7.5)
         cb.ax.tick_params(labelsize=6.5)
     else:
@@ -613,8 +621,9 @@ def draw_findings_page(fig: Figure, products: Products) -> None:
     if p.readings:
         xy = np.array([(r.reading.x, r.reading.y) for r in p.readings])
         ax.scatter(xy[:, 0], xy[:, 1], s=2, c="#111111", zorder=10)
-    fig.text(0.60, 0.365, "Low where readings are dense, high in gaps. Where the estimate is near the action "
-             "level and the deviation is large, take more readings (advice layer).", fontsize=7,
+    fig.text(0.60, 0.365, "How far a new reading there may differ from the map (one standard deviation, the "
+             "meter's scatter included); colours span this site's values. Large in gaps: where the estimate "
+             "is near the action level, measure there (next readings).", fontsize=7,
              va="top", color="#444444", wrap=True)
 
     # Bottom right: the cautions box, sized to its text.
