@@ -32,6 +32,7 @@ from mapper.nice import nice_ceiling
 from mapper.readings.serial_meter import MeterLine, SerialMeterReader
 from mapper.survey.store import utc_now
 from mapper.units import FIELD_UNITS, format_field, from_si
+from mapper.wording import plural
 
 #: How often the clock and the conditions reminder are checked, seconds.
 TICK_S = 1.0
@@ -123,8 +124,9 @@ class MainScreen(Screen):
         s = self.session
         n = len(s.field_readings())
         if n == 0:
-            return f"new walk, start at {s.current.label}"
-        return f"{n} readings, {len(s.visited)}/{len(s.points)} points done, resuming at {s.current.label}"
+            return f"new walk, start at point {s.current.label}"
+        return (f"{plural(n, 'reading')}, {len(s.visited)}/{len(s.points)} points done, resuming at point "
+                f"{s.current.label}")
 
     # ------------------------------------------------------------ refreshing
     def refresh_all(self) -> None:
@@ -196,7 +198,7 @@ class MainScreen(Screen):
             since = (f" · survey {_hms(age)}" if 0 <= age < 86400
                      else f" · since {first.astimezone():%d %b}")
         self._show("#progress-text",
-            f"done {done}/{total} · {n} readings\nsession {_hms(session_s)}{since}"
+            f"done {done}/{total} · {plural(n, 'reading')}\nsession {_hms(session_s)}{since}"
         )
         self.query_one("#progress", ProgressBar).update(total=total, progress=done)
 
@@ -465,7 +467,7 @@ class MainScreen(Screen):
         else:
             target = s.neighbour(direction)
             if target is None:
-                self.set_status(f"no planned point {direction} of {s.current.label}")
+                self.set_status(f"no planned point {direction} of point {s.current.label}")
                 return
             s.go(target)
             self._remember()
@@ -521,8 +523,8 @@ class MainScreen(Screen):
     def action_free(self) -> None:
         s = self.session
         if s.free_xy is not None:
-            s.go(s.nearest_point(*s.free_xy))
-            self.set_status(f"back on the grid at {s.current.label}")
+            s.go(s.current)  # back where the walk order was left, not to the nearest point
+            self.set_status(f"back on the grid at point {s.current.label}")
             self._moved()
             return
         x, y = s.position
@@ -710,7 +712,7 @@ class MainScreen(Screen):
             if peak is not None:
                 s.go(s.nearest_point(*peak))
                 self._remember()
-                self.set_status(f"at {s.current.label}, nearest planned point to the hotspot peak")
+                self.set_status(f"at point {s.current.label}, the planned point nearest the hotspot peak")
             self.refresh_all()
             self.query_one("#entry", EntryLine).focus()
 

@@ -2,10 +2,8 @@
 
 from __future__ import annotations
 
-from pathlib import Path
-
-from mapper.cli.common import positive_float, print_notes, say, threshold_arg
-from mapper.errors import MapperError
+from mapper.cli.commands import summary
+from mapper.cli.common import check_output, positive_float, print_notes, say, threshold_arg
 from mapper.export.pipeline import survey_products
 from mapper.field.build import METHODS
 from mapper.survey.store import Survey
@@ -14,8 +12,7 @@ from mapper.survey.store import Survey
 def register(sub) -> None:
     p = sub.add_parser(
         "export",
-        help="write a GeoPackage (readings, site, zones, assets, contours, bands, hotspots, advice) "
-        "and a GeoTIFF of the field beside it",
+        help=summary('export'),
     )
     p.add_argument("survey", help="survey file")
     p.add_argument("out", help="GeoPackage to write (OUT.gpkg; the GeoTIFF goes to OUT.tif)")
@@ -32,16 +29,6 @@ def register(sub) -> None:
                    help="grid cell in metres; given, the field model is rebuilt")
     p.add_argument("--csv", default=None, metavar="FILE", help="also write the corrected readings as CSV")
     p.set_defaults(func=run)
-
-
-def check_output(path: str, suffix: str) -> Path:
-    """Refuse an output name or folder before any work is done."""
-    out = Path(path)
-    if out.suffix.lower() != suffix:
-        raise MapperError(f"output {out.name!r} should end in {suffix}", where=str(out))
-    if not out.parent.exists():
-        raise MapperError("folder does not exist", where=str(out.parent))
-    return out
 
 
 def run(args) -> int:

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+from mapper.cli.commands import summary
 from mapper.cli.common import fmt, neighbors_arg, positive_float, say, table, warn
 from mapper.corrections.pipeline import correct_survey
 from mapper.errors import MapperError
@@ -9,12 +10,13 @@ from mapper.field import METHODS, MODELS, Variogram, build_field, field_to_bytes
 from mapper.field.inputs import MIN_FIELD_POSITIONS, distinct_positions, field_heights, field_inputs
 from mapper.field.physical import seeds_from_site
 from mapper.survey.store import Survey
+from mapper.units import field_text_in
 
 
 def register(sub) -> None:
     p = sub.add_parser(
         "grid",
-        help="interpolate the corrected readings (kriging, RBF or IDW) and store the field model",
+        help=summary('grid'),
         description="Interpolate the survey's corrected field readings onto a grid over the site, "
         "with leave-one-out cross-validation, and store the field model in the survey. A variogram "
         "given here is used as is, without fitting.",
@@ -96,7 +98,7 @@ def run(args) -> int:
     say(f"field model stored in {args.survey}: {grid.method}, {len(grid.x)} x {len(grid.y)} cells of {grid.cell_m:g} m")
     say(f"from {len(values)} corrected readings at {positions} positions "
         f"(corrections: {', '.join(corrected.applied) or 'none'})")
-    say(f"why: {grid.reason}")
+    say(f"why: {field_text_in(grid.reason, unit)}")
     text = grid.params.get("variogram_text")
     if text:
         fit = grid.params.get("variogram_fit")

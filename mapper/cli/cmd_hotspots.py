@@ -12,6 +12,7 @@ import json
 
 import numpy as np
 
+from mapper.cli.commands import summary
 from mapper.cli.common import fmt, say, table, threshold_arg, warn
 from mapper.export.pipeline import Products, survey_file_products
 from mapper.features import Findings
@@ -22,7 +23,7 @@ from mapper.features.zone_results import zone_sentence
 def register(sub) -> None:
     p = sub.add_parser(
         "hotspots",
-        help="list hotspots, keep-away violations and where to measure next",
+        help=summary('hotspots'),
         description="Outline where the field magnitude reaches the action level (both "
         "polarities), check the ANSI/ESD S20.20 keep-away distances, and print the cautions.",
     )

@@ -9,6 +9,7 @@ import time
 from pathlib import Path
 from zoneinfo import ZoneInfo, ZoneInfoNotFoundError
 
+from mapper.cli.commands import summary
 from mapper.cli.common import positive_float, say, unit_arg, warn
 from mapper.errors import MapperError
 from mapper.readings.importing import (
@@ -21,7 +22,7 @@ from mapper.survey.store import Survey
 
 
 def register(sub) -> None:
-    p = sub.add_parser("import", help="import readings (or condition notes) from a CSV file, all or nothing")
+    p = sub.add_parser("import", help=summary('import'))
     p.add_argument("survey", help="survey file")
     p.add_argument("file", help="CSV with x,y (or lon,lat),value[,unit,time,height_m,note,kind,meter,point]")
     p.add_argument("--unit", type=unit_arg, help="unit of values without a unit column")

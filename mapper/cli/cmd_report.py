@@ -4,15 +4,15 @@ from __future__ import annotations
 
 from pathlib import Path
 
-from mapper.cli.cmd_export import check_output
-from mapper.cli.common import positive_float, print_notes, say, threshold_arg
+from mapper.cli.commands import summary
+from mapper.cli.common import check_output, positive_float, print_notes, say, threshold_arg
 from mapper.export.pipeline import survey_products
 from mapper.field.build import METHODS
 from mapper.survey.store import Survey
 
 
 def register(sub) -> None:
-    p = sub.add_parser("report", help="write a PDF report: the field map, the findings and the cautions")
+    p = sub.add_parser("report", help=summary('report'))
     p.add_argument("survey", help="survey file")
     p.add_argument("out", help="PDF to write")
     p.add_argument("--threshold", type=threshold_arg, default=None,

@@ -5,6 +5,7 @@ from __future__ import annotations
 import argparse
 import sys
 from collections.abc import Sequence
+from pathlib import Path
 
 from mapper.errors import MapperError
 from mapper.units import canonical_unit, format_field, parse_threshold_text
@@ -97,3 +98,13 @@ def print_notes(products) -> None:
             say(note)
         elif note != products.no_field_reason:
             warn(note)
+
+
+def check_output(path: str, suffix: str) -> Path:
+    """Refuse an output name or folder before any work is done."""
+    out = Path(path)
+    if out.suffix.lower() != suffix:
+        raise MapperError(f"output {out.name!r} should end in {suffix}", where=str(out))
+    if not out.parent.exists():
+        raise MapperError("folder does not exist", where=str(out.parent))
+    return out

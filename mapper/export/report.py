@@ -42,8 +42,10 @@ from mapper.features.contours import Levels
 from mapper.features.hotspots import MEASURED_NOTE
 from mapper.features.sources import LIMITATIONS, source_records
 from mapper.features.zone_results import zone_sentence
+from mapper.site.model import Site
 from mapper.survey.store import to_utc_text, utc_now
 from mapper.units import field_text_in, format_field, from_si, plain_number
+from mapper.wording import local_span
 
 #: A4 landscape, inches.
 PAGE_SIZE_IN = (11.69, 8.27)
@@ -107,13 +109,13 @@ def _polygon_path(geom: BaseGeometry) -> MplPath | None:
     return MplPath(np.concatenate(verts), codes)
 
 
-def _fill(ax, geom: BaseGeometry, **kw) -> None:
+def fill_geometry(ax, geom: BaseGeometry, **kw) -> None:
     path = _polygon_path(geom)
     if path is not None:
         ax.add_patch(PathPatch(path, **kw))
 
 
-def _lines(ax, geom: BaseGeometry, **kw) -> None:
+def draw_lines(ax, geom: BaseGeometry, **kw) -> None:
     parts = getattr(geom, "geoms", [geom])
     for part in parts:
         if part.is_empty:
@@ -122,11 +124,11 @@ def _lines(ax, geom: BaseGeometry, **kw) -> None:
             xy = np.asarray(part.coords)
             ax.plot(xy[:, 0], xy[:, 1], **kw)
         elif part.geom_type == "Polygon":
-            _lines(ax, part.exterior, **kw)
+            draw_lines(ax, part.exterior, **kw)
             for ring in part.interiors:
-                _lines(ax, ring, **kw)
+                draw_lines(ax, ring, **kw)
         elif part.geom_type.startswith("Multi") or part.geom_type == "GeometryCollection":
-            _lines(ax, part, **kw)
+            draw_lines(ax, part, **kw)
         elif part.geom_type == "Point":
             ax.plot([part.x], [part.y], marker="s", color=kw.get("color", "k"), markersize=4)
 
@@ -230,7 +232,7 @@ def _std_cmap() -> LinearSegmentedColormap:
     return LinearSegmentedColormap.from_list("mapper_uncertainty", ["#f7f7f7", "#d9d2e6", "#a593c6", "#6f5a9e"])
 
 
-class _Column:
+class TextColumn:
     """Writes lines of text downwards in figure coordinates."""
 
     def __init__(self, fig: Figure, x: float, top: float, width: float) -> None:
@@ -265,19 +267,6 @@ class _Column:
 
 
 # ------------------------------------------------------------------------------------- pages
-def local_span(span, timezone: str | None) -> str:
-    """The survey's time span, in the site's local time with its UTC offset when it has a
-    ``timezone`` (times stay UTC in the data), else in UTC."""
-    if not timezone:
-        return f"{span[0]:%Y-%m-%d %H:%M}–{span[1]:%H:%M} UTC"
-    from zoneinfo import ZoneInfo
-
-    zone = ZoneInfo(timezone)
-    a, b = span[0].astimezone(zone), span[1].astimezone(zone)
-    offset = a.strftime("%z")
-    return f"{a:%Y-%m-%d %H:%M}–{b:%H:%M} {timezone} (UTC{offset[:3]}:{offset[3:]})"
-
-
 def _title(fig: Figure, products: Products, heading: str) -> None:
     p = products
     fig.text(0.04, 0.965, f"{p.name}: {heading}", fontsize=15, fontweight="bold", va="top")
@@ -291,10 +280,10 @@ def _title(fig: Figure, products: Products, heading: str) -> None:
              f"CRS {p.crs.name}  ·  {Path(p.source).name}", fontsize=6.5, color="#555555")
 
 
-def _draw_site(ax, products: Products, *, labels: bool = True) -> None:
-    site = products.site
+def draw_site(ax, site: Site, *, labels: bool = True) -> None:
+    """Zones, assets (polygons, lines and points, labelled) and the outline on a map axes."""
     for zone in site.zones:
-        _lines(ax, zone.geometry, color=st.ZONE_COLOR, linewidth=1.2, linestyle=(0, (5, 3)), zorder=6)
+        draw_lines(ax, zone.geometry, color=st.ZONE_COLOR, linewidth=1.2, linestyle=(0, (5, 3)), zorder=6)
         if labels:
             minx, miny, maxx, maxy = zone.geometry.bounds
             ax.text(minx + 0.2, maxy - 0.2, zone.name, color=st.ZONE_COLOR, fontsize=6.5, ha="left", va="top",
@@ -303,14 +292,14 @@ def _draw_site(ax, products: Products, *, labels: bool = True) -> None:
     for asset in site.assets:
         g = asset.geometry
         if g.geom_type.endswith("Polygon"):
-            _fill(ax, g, facecolor="#9a9a9a", edgecolor="#4a4a4a", linewidth=0.7, alpha=0.55, zorder=5,
+            fill_geometry(ax, g, facecolor="#9a9a9a", edgecolor="#4a4a4a", linewidth=0.7, alpha=0.55, zorder=5,
                   hatch="////" if not asset.walkable else None)
         elif g.geom_type.endswith("Point"):
             for pt in getattr(g, "geoms", [g]):
                 ax.plot([pt.x], [pt.y], marker="o", markersize=5, color="#4a4a4a", markeredgecolor="white",
                         markeredgewidth=0.6, linestyle="none", zorder=5)
         else:
-            _lines(ax, g, color="#4a4a4a", linewidth=3.2, solid_capstyle="butt", zorder=5, alpha=0.8)
+            draw_lines(ax, g, color="#4a4a4a", linewidth=3.2, solid_capstyle="butt", zorder=5, alpha=0.8)
         if labels:
             if g.geom_type.endswith("Polygon") or g.geom_type.endswith("Point"):
                 p = g.representative_point()
@@ -318,11 +307,12 @@ def _draw_site(ax, products: Products, *, labels: bool = True) -> None:
                 p = g.interpolate(0.5, normalized=True)
             ax.text(p.x, p.y, asset.name, fontsize=5.8, ha="center", va="center", color="#1e1e1e", zorder=9,
                     style="italic", bbox={"boxstyle": "round,pad=0.08", "fc": "white", "ec": "none", "alpha": 0.6})
-    _lines(ax, site.outline, color=st.OUTLINE_COLOR, linewidth=1.6, zorder=7)
+    draw_lines(ax, site.outline, color=st.OUTLINE_COLOR, linewidth=1.6, zorder=7)
 
 
-def _frame_axes(ax, products: Products) -> tuple[float, float, float, float]:
-    minx, miny, maxx, maxy = products.site.outline.bounds
+def frame_axes(ax, site: Site) -> tuple[float, float, float, float]:
+    """Limits, equal aspect and axis labels of a site map; returns the outline's bounds, metres."""
+    minx, miny, maxx, maxy = site.outline.bounds
     w, h = maxx - minx, maxy - miny
     ax.set_xlim(minx - 0.03 * w, maxx + 0.03 * w)
     ax.set_ylim(miny - 0.14 * h, maxy + 0.04 * h)
@@ -342,21 +332,21 @@ def draw_map_page(fig: Figure, products: Products) -> None:
     unit = p.display_unit
     _title(fig, p, "electrostatic field map")
     ax = fig.add_axes((0.055, 0.085, 0.70, 0.80))
-    bounds = _frame_axes(ax, p)
+    bounds = frame_axes(ax, p.site)
     readings = list(p.readings)
     if f is not None:
         colors = st.band_colors(f.bands, f.threshold_v_per_m)
         for band, color in zip(f.bands, colors, strict=True):
-            _fill(ax, band.geometry, facecolor=color, edgecolor=color, linewidth=0.3, zorder=1)
+            fill_geometry(ax, band.geometry, facecolor=color, edgecolor=color, linewidth=0.3, zorder=1)
         span = bounds[2] - bounds[0]
         placed = [(h.geometry.bounds[2], h.geometry.bounds[3]) for h in (*f.hotspots, *f.zone_hotspots)]
         for iso in f.isolines:
             if iso.geometry.is_empty:
                 continue
-            _lines(ax, iso.geometry, color=st.CONTOUR_COLOR, linewidth=0.6, zorder=4)
+            draw_lines(ax, iso.geometry, color=st.CONTOUR_COLOR, linewidth=0.6, zorder=4)
             _label_lines(ax, iso.geometry, iso.label, 0.12 * span, placed, 0.09 * span)
         for region in f.probable:
-            _lines(ax, region.geometry, color=st.PROBABLE_COLOR, linewidth=1.3, linestyle=(0, (2, 2)), zorder=7)
+            draw_lines(ax, region.geometry, color=st.PROBABLE_COLOR, linewidth=1.3, linestyle=(0, (2, 2)), zorder=7)
         levels = f.levels
     else:
         values = [r.value_v_per_m for r in readings] or [0.0, 1.0]
@@ -364,8 +354,8 @@ def draw_map_page(fig: Figure, products: Products) -> None:
         levels = Levels(scale_levels(p.threshold_v_per_m, lo, hi if hi > lo else lo + 1.0), unit)
         edges = (-math.inf, *levels.values_v_per_m, math.inf)
         colors = [cs.interval_hex(a, b, p.threshold_v_per_m) for a, b in zip(edges[:-1], edges[1:], strict=True)]
-        _fill(ax, p.site.outline, facecolor="#f2f2f2", edgecolor="none", zorder=1)
-    _draw_site(ax, p)
+        fill_geometry(ax, p.site.outline, facecolor="#f2f2f2", edgecolor="none", zorder=1)
+    draw_site(ax, p.site)
     if readings:
         xy = np.array([(r.reading.x, r.reading.y) for r in readings])
         if f is not None:
@@ -377,8 +367,8 @@ def draw_map_page(fig: Figure, products: Products) -> None:
     if f is not None:
         for h in (*f.hotspots, *f.zone_hotspots):
             color = st.HOTSPOT_COLORS.get(h.polarity, "#000000")
-            _lines(ax, h.geometry, color="white", linewidth=3.4, zorder=11)
-            _lines(ax, h.geometry, color=color, linewidth=1.9, zorder=12)
+            draw_lines(ax, h.geometry, color="white", linewidth=3.4, zorder=11)
+            draw_lines(ax, h.geometry, color=color, linewidth=1.9, zorder=12)
             bx = h.geometry.bounds
             # the label sits at the outline's upper right, turned inward near the map's edges
             near_right = bx[2] > bounds[2] - 0.25 * (bounds[2] - bounds[0])
@@ -470,7 +460,7 @@ def draw_findings_page(fig: Figure, products: Products) -> None:
     f = p.findings
     unit = p.display_unit
     _title(fig, p, "findings")
-    col = _Column(fig, 0.04, 0.895, 0.52)
+    col = TextColumn(fig, 0.04, 0.895, 0.52)
 
     col.heading("Hotspots")
     if f is None:
@@ -602,7 +592,7 @@ def draw_findings_page(fig: Figure, products: Products) -> None:
     ax = fig.add_axes((0.60, 0.40, 0.36, 0.46))
     ax.set_title("Uncertainty of a new reading (standard deviation)", fontsize=9.5, loc="left",
                  color="#1b3a6b", fontweight="bold")
-    _frame_axes(ax, p)
+    frame_axes(ax, p.site)
     g = p.grid
     if g is not None and np.isfinite(g.std).any():
         std = np.ma.masked_invalid(from_si(1.0, unit) * np.asarray(g.std, dtype=float))
@@ -617,7 +607,7 @@ def draw_findings_page(fig: Figure, products: Products) -> None:
     else:
         reason = "no field model" if g is None else f"method {g.method} gives no standard deviation"
         ax.text(0.5, 0.5, reason, transform=ax.transAxes, ha="center", va="center", fontsize=8)
-    _draw_site(ax, p, labels=False)
+    draw_site(ax, p.site, labels=False)
     if p.readings:
         xy = np.array([(r.reading.x, r.reading.y) for r in p.readings])
         ax.scatter(xy[:, 0], xy[:, 1], s=2, c="#111111", zorder=10)
@@ -628,7 +618,7 @@ def draw_findings_page(fig: Figure, products: Products) -> None:
 
     # Bottom right: the cautions box, sized to its text.
     left, top, width = 0.60, 0.30, 0.36
-    cc = _Column(fig, left + 0.012, top, width - 0.024)
+    cc = TextColumn(fig, left + 0.012, top, width - 0.024)
     cc.heading("Cautions")
     for text in CAUTIONS:
         cc.para("• " + text, 7.4)
@@ -651,23 +641,23 @@ def draw_sources_page(fig: Figure, products: Products) -> None:
     rows = source_records(p.grid, p.site)
     phys = p.grid.params.get("physics", {})
     ax = fig.add_axes((0.06, 0.40, 0.88, 0.46))
-    _frame_axes(ax, p)
-    _draw_site(ax, p, labels=False)
+    frame_axes(ax, p.site)
+    draw_site(ax, p.site, labels=False)
     for r in rows:
         g = shapely.from_wkt(r["wkt"])
         color = "#c0392b" if r["charge_c"] > 0 else "#1f5fa8"
         if g.geom_type == "Point":
             ax.scatter([g.x], [g.y], s=90, marker="*", color=color, edgecolor="black", linewidth=0.5, zorder=11)
         elif g.geom_type.endswith("Polygon"):
-            _fill(ax, g, facecolor=color, edgecolor="black", linewidth=0.8, alpha=0.55, zorder=10)
+            fill_geometry(ax, g, facecolor=color, edgecolor="black", linewidth=0.8, alpha=0.55, zorder=10)
         else:
-            _lines(ax, g, color=color, linewidth=4.0, solid_capstyle="butt", zorder=10)
+            draw_lines(ax, g, color=color, linewidth=4.0, solid_capstyle="butt", zorder=10)
         ax.annotate(r["source_id"], (r["x_m"], r["y_m"]), xytext=(5, 5), textcoords="offset points",
                     fontsize=8, fontweight="bold", zorder=12,
                     bbox={"boxstyle": "round,pad=0.12", "fc": "white", "ec": "none", "alpha": 0.8})
     ax.set_title("Sources of the physical field model (red: positive charge, blue: negative)", fontsize=9.5,
                  loc="left", color="#1b3a6b", fontweight="bold")
-    col = _Column(fig, 0.06, 0.34, 0.88)
+    col = TextColumn(fig, 0.06, 0.34, 0.88)
     col.heading("Likely charged objects, largest field first")
     if not rows:
         col.para("No charged source explains the readings better than the background and the meter's noise.")

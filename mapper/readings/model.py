@@ -10,6 +10,8 @@ READING_KINDS = ("field", "reference", "zero", "calibration")
 #: Flag on a reading the user excluded: kept in the survey and the exports, left out of the field
 #: model, the controls and the outlier check's neighbours.
 EXCLUDED_FLAG = "excluded"
+#: Flag set by the survey app's "doubtful" box (the reading stays in the field model).
+DOUBTFUL_FLAG = "doubtful"
 
 
 @dataclass(frozen=True)

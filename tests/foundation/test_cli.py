@@ -183,3 +183,40 @@ def test_second_import_of_same_file_refused_unless_again(box_survey, tmp_path):
     assert digest(box_survey) == before
     result = mapper("import", box_survey, csv, "--again")
     assert result.returncode == 0 and "imported 2 readings" in result.stdout
+
+
+def test_help_lists_every_command_without_the_numerical_stack():
+    # `mapper --help` imports no sub-command module (numpy, scipy, shapely ... load only when a
+    # command runs), and still lists each command with its one-line help.
+    from mapper.cli.commands import COMMANDS
+
+    code = (
+        "import sys\n"
+        "from mapper.cli.main import main\n"
+        "try:\n    main(['--help'])\nexcept SystemExit:\n    pass\n"
+        "heavy = [m for m in ('numpy', 'scipy', 'shapely', 'geopandas', 'matplotlib', 'textual') "
+        "if m in sys.modules]\n"
+        "print('HEAVY', heavy)\n"
+    )
+    r = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True)
+    assert r.returncode == 0, r.stderr
+    assert "HEAVY []" in r.stdout
+    for name, (_, text) in COMMANDS.items():
+        assert name in r.stdout and text.split()[0] in r.stdout
+
+
+def test_info_counts_every_kind_with_plurals_and_the_operator(tmp_path):
+    survey = tmp_path / "hall.survey"
+    r = mapper("new", survey, "--site", SAMPLES / "north_hall.toml", "--spacing", "2", "--unit", "kV/m",
+               "--operator", "R. Osei")
+    assert r.returncode == 0, r.stderr
+    assert "residuals [-]" not in r.stdout
+    assert mapper("import", survey, SAMPLES / "north_hall_readings.csv").returncode == 0
+    out = mapper("info", survey).stdout
+    assert "355 readings (field 348, reference 5, zero 2)" in out
+    assert "operator  R. Osei" in out and "1 zone" in out and "1 zones" not in out
+    # local time with its offset (the sample site's timezone is Europe/Berlin, UTC+1 in November)
+    assert "Europe/Berlin (UTC+01:00)" in out
+    # the drift rate in the survey's display unit
+    drift = next(line for line in out.splitlines() if line.startswith("drift"))
+    assert "kV/m per hour" in drift and "V/m per hour" not in drift.replace("kV/m per hour", "")
