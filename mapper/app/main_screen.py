@@ -20,7 +20,6 @@ from mapper.app.help_screen import HelpScreen
 from mapper.app.hotspot_screen import HotspotScreen
 from mapper.app.keys import bindings
 from mapper.app.legend import Legend, legend_text
-from mapper.app.live import MIN_POSITIONS_FOR_ESTIMATE, LiveResult, refit
 from mapper.app.map_view import MapView
 from mapper.app.palette import FEATURE_COLOURS, hex_rgb
 from mapper.app.raster import LAYER_TITLES, LAYERS, Markers
@@ -33,6 +32,7 @@ from mapper.readings.serial_meter import MeterLine, SerialMeterReader
 from mapper.survey.store import utc_now
 from mapper.units import FIELD_UNITS, format_field, from_si
 from mapper.wording import plural
+from mapper.workflow import MIN_FIELD_POSITIONS, LiveResult, live_products
 
 #: How often the clock and the conditions reminder are checked, seconds.
 TICK_S = 1.0
@@ -210,7 +210,7 @@ class MainScreen(Screen):
             text = f"hotspots (▲ ±{level}): fitting…"
         elif live.grid is None:
             text = (f"hotspots (▲ ±{level}): {live.hotspot_count or '-'}\n"
-                    f"map after {MIN_POSITIONS_FOR_ESTIMATE} readings")
+                    f"map after {MIN_FIELD_POSITIONS} readings")
         else:
             text = f"hotspots (▲ ±{level}): {live.hotspot_count}"
             if live.suggestions:
@@ -353,7 +353,7 @@ class MainScreen(Screen):
     def _refit_worker(self, readings: list, threshold_v_per_m: float, meters: dict) -> None:
         worker = get_current_worker()
         s = self.session
-        result = refit(
+        result = live_products(
             readings, s.site, threshold_v_per_m, s.points, cancelled=lambda: worker.is_cancelled, meters=meters,
             unit=s.display_unit,
         )
@@ -361,9 +361,13 @@ class MainScreen(Screen):
             self.app.call_from_thread(self._apply_live, result)
 
     def _apply_live(self, result: LiveResult) -> None:
+        old = self.live.notes if self.live is not None else ()
         self.live = result
         self._hotspot_line()
         self._draw_map()
+        for note in result.notes:
+            if note not in old:  # say each once, not after every refit
+                self.set_status(note, error=True)
 
     # ------------------------------------------------------------- live meter
     @work(thread=True, exclusive=True, group="meter", description="serial meter")

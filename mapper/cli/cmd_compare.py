@@ -17,9 +17,9 @@ import numpy as np
 from mapper.cli.commands import summary
 from mapper.cli.common import check_output, fmt, say, table, threshold_arg, warn
 from mapper.errors import MapperError
-from mapper.export.pipeline import survey_file_products
 from mapper.features import compare_fields
 from mapper.features.cautions import CAUTIONS
+from mapper.workflow import survey_file_products
 
 
 def register(sub) -> None:

@@ -4,9 +4,9 @@ from __future__ import annotations
 
 from mapper.cli.commands import summary
 from mapper.cli.common import check_output, positive_float, print_notes, say, threshold_arg
-from mapper.export.pipeline import survey_products
 from mapper.field.build import METHODS
 from mapper.survey.store import Survey
+from mapper.workflow import survey_products
 
 
 def register(sub) -> None:

@@ -1,6 +1,6 @@
 """``mapper hotspots``: where a survey's field reaches the action level, and what is too close.
 
-Runs :func:`mapper.export.pipeline.survey_products` on the survey (corrected readings, the stored
+Runs :func:`mapper.workflow.survey_products` on the survey (corrected readings, the stored
 field model or one interpolated now when none is stored or the readings changed since) and
 prints its findings (:func:`mapper.features.analyse`): hotspots, zone limits, probable
 exceedance, keep-away checks, places to measure next, and the cautions.
@@ -14,10 +14,10 @@ import numpy as np
 
 from mapper.cli.commands import summary
 from mapper.cli.common import fmt, say, table, threshold_arg, warn
-from mapper.export.pipeline import Products, survey_file_products
 from mapper.features import Findings
 from mapper.features.hotspots import MEASURED_NOTE
 from mapper.features.zone_results import zone_sentence
+from mapper.workflow import Products, survey_file_products
 
 
 def register(sub) -> None:
@@ -122,8 +122,8 @@ def report_lines(products: Products) -> list[str]:
     Parameters
     ----------
     products : Products
-        Output of :func:`~mapper.export.pipeline.survey_products` with a field model
-        (:meth:`~mapper.export.pipeline.Products.require_field`).
+        Output of :func:`~mapper.workflow.survey_products` with a field model
+        (:meth:`~mapper.workflow.Products.require_field`).
     """
     products.require_field()
     findings = products.findings

@@ -6,8 +6,8 @@ import json
 
 from mapper.cli.commands import summary
 from mapper.cli.common import fmt, say, table, warn
-from mapper.export.pipeline import survey_file_products
 from mapper.features.sources import LIMITATIONS, source_records
+from mapper.workflow import survey_file_products
 
 
 def register(sub) -> None:

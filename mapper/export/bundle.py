@@ -7,9 +7,9 @@ from pathlib import Path
 
 from mapper.export.csv_out import write_readings_csv
 from mapper.export.gpkg import GpkgResult, write_geopackage
-from mapper.export.pipeline import Products
 from mapper.export.raster import write_geotiff
 from mapper.units import format_field
+from mapper.workflow import Products
 
 
 @dataclass(frozen=True)
@@ -65,7 +65,7 @@ def export_products(products: Products, gpkg_path: str | Path, *, csv_path: str 
     Parameters
     ----------
     products : Products
-        Output of :func:`~mapper.export.pipeline.survey_products`.
+        Output of :func:`~mapper.workflow.survey_products`.
     gpkg_path : str or Path
         Target ``.gpkg``.
     csv_path : str or Path, optional

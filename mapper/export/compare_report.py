@@ -23,7 +23,6 @@ from mapper import __version__
 from mapper.atomic_file import atomic_path
 from mapper.errors import MapperError
 from mapper.export import styles as st
-from mapper.export.pipeline import Products
 from mapper.export.report import (
     PAGE_SIZE_IN,
     RC,
@@ -38,6 +37,7 @@ from mapper.features.cautions import CAUTIONS
 from mapper.features.compare import Comparison
 from mapper.survey.store import to_utc_text, utc_now
 from mapper.units import format_field, from_si, plain_number
+from mapper.workflow import Products
 
 #: Largest number of hotspot-change rows printed (the GeoPackage's ``changes`` layer has all).
 MAX_CHANGE_ROWS = 10

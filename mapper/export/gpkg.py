@@ -19,7 +19,7 @@ from mapper.errors import MapperError
 from mapper.export import styles as st
 from mapper.export.layers import Layer, all_layers
 from mapper.export.metadata import METADATA_TABLE, metadata_rows
-from mapper.export.pipeline import Products
+from mapper.workflow import Products
 
 
 @dataclass(frozen=True)
@@ -82,7 +82,7 @@ def write_geopackage(products: Products, path: str | Path, *, exported_utc: str 
     Parameters
     ----------
     products : Products
-        Output of :func:`~mapper.export.pipeline.survey_products`.
+        Output of :func:`~mapper.workflow.survey_products`.
     path : str or Path
         Target ``.gpkg``; replaced if it exists.
     exported_utc : str, optional

@@ -16,10 +16,10 @@ import shapely
 from shapely.geometry import Point
 
 from mapper.export.crs import transform_all
-from mapper.export.pipeline import Products, is_excluded
 from mapper.export.styles import band_colors
 from mapper.features.sources import source_records
 from mapper.units import from_si
+from mapper.workflow import Products, is_excluded
 
 
 @dataclass(frozen=True)

@@ -34,7 +34,6 @@ from mapper import __version__
 from mapper.atomic_file import atomic_path
 from mapper.errors import MapperError
 from mapper.export import styles as st
-from mapper.export.pipeline import Products
 from mapper.features import CAUTIONS, LIMITS_ARE_DEFAULTS
 from mapper.features import colour_scale as cs
 from mapper.features.colour_scale import scale_levels
@@ -46,6 +45,7 @@ from mapper.site.model import Site
 from mapper.survey.store import to_utc_text, utc_now
 from mapper.units import field_text_in, format_field, from_si, plain_number
 from mapper.wording import local_span
+from mapper.workflow import Products
 
 #: A4 landscape, inches.
 PAGE_SIZE_IN = (11.69, 8.27)
@@ -686,7 +686,7 @@ def write_report(products: Products, pdf_path: str | Path, *, png_path: str | Pa
     Parameters
     ----------
     products : Products
-        Output of :func:`~mapper.export.pipeline.survey_products`.
+        Output of :func:`~mapper.workflow.survey_products`.
     pdf_path : str or Path
         Target ``.pdf``; replaced if it exists.
     png_path : str or Path, optional
