@@ -17,7 +17,6 @@ by :func:`mapper.corrections.pipeline.load_meters`.
 from __future__ import annotations
 
 import bisect
-import sqlite3
 import time
 from collections.abc import Callable, Mapping, Sequence
 from dataclasses import dataclass, field
@@ -49,8 +48,34 @@ from mapper.site.model import Site
 from mapper.survey.store import Survey
 from mapper.units import BareNumber, canonical_unit, resolve_threshold
 
-#: Notes that say where the field model came from start with this (they are remarks, not warnings).
+#: Remarks that say where the field model came from start with this.
 FIELD_NOTE_PREFIX = "field model:"
+#: Levels of a :class:`Note`.
+NOTE_LEVELS = ("remark", "warning", "reason")
+
+
+@dataclass(frozen=True)
+class Note:
+    """Something a run has to tell the user.
+
+    Attributes
+    ----------
+    level : str
+        ``remark`` (how the result was made: printed to stdout), ``warning`` (something to check:
+        stderr) or ``reason`` (why there is no field model: shown where the map would be).
+    text : str
+        The sentence.
+    """
+
+    level: str
+    text: str
+
+    def __post_init__(self) -> None:
+        if self.level not in NOTE_LEVELS:
+            raise ValueError(f"note level {self.level!r} is not one of {NOTE_LEVELS}")
+
+    def __str__(self) -> str:
+        return self.text
 
 
 @dataclass(frozen=True)
@@ -103,9 +128,9 @@ class Products:
         Map features of ``grid`` at ``threshold_v_per_m``.
     no_field_reason : str or None
         Why there is no field model.
-    notes : tuple of str
-        Warnings and remarks for the user (site, corrections, field model); see also
-        :attr:`warnings`.
+    notes : tuple of Note
+        Remarks, warnings and the no-field reason for the user (site, corrections, field
+        model); see also :attr:`warnings`.
     """
 
     name: str
@@ -130,7 +155,7 @@ class Products:
     field_note: str = ""
     findings: Findings | None = None
     no_field_reason: str | None = None
-    notes: tuple[str, ...] = ()
+    notes: tuple[Note, ...] = ()
 
     @property
     def has_field(self) -> bool:
@@ -144,10 +169,8 @@ class Products:
 
     @property
     def warnings(self) -> tuple[str, ...]:
-        """The notes that are warnings: all but the field-model remarks and the no-field reason."""
-        return tuple(
-            n for n in self.notes if not n.startswith(FIELD_NOTE_PREFIX) and n != self.no_field_reason
-        )
+        """The texts of the notes that are warnings (not remarks, not the no-field reason)."""
+        return tuple(n.text for n in self.notes if n.level == "warning")
 
     def require_field(self) -> Products:
         """These products, or a one-line :class:`MapperError` naming the survey and why there is no field.
@@ -237,19 +260,6 @@ def build_survey_field(
                        height_m=height_m)
 
 
-def _reading_extra(survey: Survey, ids: list[int]) -> dict[int, dict]:
-    if not ids:
-        return {}
-    try:
-        rows = survey.conn.execute(
-            "SELECT id, source, recorded_utc FROM readings WHERE id BETWEEN ? AND ?", (min(ids), max(ids))
-        ).fetchall()
-    except sqlite3.Error:
-        return {}
-    wanted = set(ids)
-    return {int(r[0]): {"source": r[1], "recorded_utc": r[2]} for r in rows if int(r[0]) in wanted}
-
-
 @dataclass(frozen=True)
 class _FieldModel:
     """What :func:`_field_model` decided: the grid (or why none), where it came from, what to say."""
@@ -257,7 +267,7 @@ class _FieldModel:
     grid: FieldGrid | None = None
     source: str = ""
     note: str = ""
-    remarks: tuple[str, ...] = ()
+    remarks: tuple[Note, ...] = ()
     reason: str | None = None
 
 
@@ -270,7 +280,7 @@ def _field_model(
     A stored model older than the latest change to the readings is not used; the new one is
     interpolated with the stored model's method. ``method`` or ``cell_m`` always build anew.
     """
-    remarks: list[str] = []
+    remarks: list[Note] = []
     build_method = method or "auto"
     consult_store = use_stored and method is None and cell_m is None and height_m is None
     stored = survey.latest_field() if consult_store else None
@@ -283,14 +293,15 @@ def _field_model(
                 stored_grid,
                 "stored",
                 f"stored field model ({stored_grid.method}, made {created})",
-                (f"{FIELD_NOTE_PREFIX} stored in the survey on {created} ({stored_grid.method})",),
+                (Note("remark", f"{FIELD_NOTE_PREFIX} stored in the survey on {created} ({stored_grid.method})"),),
             )
         build_method = stored_grid.method if stored_grid.method in METHODS else "auto"
-        remarks.append(
+        remarks.append(Note(
+            "warning",
             f"the stored field model ({created}) is older than the latest change to the "
             f"readings ({changed}); interpolated again with method {build_method} "
-            "(run 'mapper grid' to store a new one)"
-        )
+            "(run 'mapper grid' to store a new one)",
+        ))
     try:
         grid = build_field(xy, values, outline, method=build_method, cell_m=cell_m, heights_m=heights_m,
                            seeds=seeds_from_site(survey.site), height_m=height_m)
@@ -298,12 +309,13 @@ def _field_model(
         if cell_m is not None or height_m is not None:  # the user's own --cell or --height: say so
             raise
         return _FieldModel(remarks=tuple(remarks), reason=f"no field model could be built: {exc.message}")
-    remarks.append(f"{FIELD_NOTE_PREFIX} built now ({grid.reason})")
+    remarks.append(Note("remark", f"{FIELD_NOTE_PREFIX} built now ({grid.reason})"))
     if consult_store and stored is None:
-        remarks.append(
+        remarks.append(Note(
+            "warning",
             "no field model stored in the survey; interpolated one now "
-            "(run 'mapper grid' to choose the method and store it)"
-        )
+            "(run 'mapper grid' to choose the method and store it)",
+        ))
     return _FieldModel(grid, "built", f"interpolated now ({grid.method}); not stored", tuple(remarks))
 
 
@@ -351,7 +363,7 @@ def survey_products(
     unit = canonical_unit(unit or survey.display_unit)
     threshold = (resolve_threshold(threshold_v_per_m, survey.display_unit) if threshold_v_per_m is not None
                  else float(survey.threshold_v_per_m))
-    notes: list[str] = list(site.warnings)
+    notes: list[Note] = [Note("warning", w) for w in site.warnings]
     everything = survey.readings(kind=None)
     controls = tuple(r for r in everything if r.kind in ("zero", "reference"))
     meters = load_meters(survey)
@@ -360,7 +372,7 @@ def survey_products(
     if any(r.kind == "field" for r in everything):
         corrections = correct(everything, meters)
         readings = corrections.readings
-        notes.extend(corrections.warnings)
+        notes.extend(Note("warning", w) for w in corrections.warnings)
 
     xy, values = field_inputs(readings)
     positions = distinct_positions(xy)
@@ -379,7 +391,7 @@ def survey_products(
             grid, site, readings, threshold, unit=unit, planned=survey.plan.points
         )
     if reason:
-        notes.append(reason)
+        notes.append(Note("reason", reason))
     return Products(
         name=survey.name,
         source=str(survey.path),
@@ -396,7 +408,7 @@ def survey_products(
         spacing_m=survey.plan.spacing_m,
         readings=readings,
         controls=controls,
-        reading_extra=_reading_extra(survey, [r.reading.id for r in readings]),
+        reading_extra=survey.reading_origins(r.reading.id for r in readings),
         corrections=corrections,
         conditions=tuple(survey.conditions()),
         meters=tuple(meters[k] for k in sorted(meters)),
@@ -613,6 +625,8 @@ def live_products(
 
 __all__ = [
     "FIELD_NOTE_PREFIX",
+    "NOTE_LEVELS",
+    "Note",
     "MIN_FIELD_POSITIONS",
     "MIN_POSITIONS_FOR_KRIGING",
     "LiveResult",

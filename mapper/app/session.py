@@ -17,8 +17,8 @@ import shapely
 
 from mapper.errors import MapperError
 from mapper.plan.grid import PlanPoint
-from mapper.readings.model import DOUBTFUL_FLAG, Conditions, Reading
-from mapper.survey.store import NewReading, Survey, utc_now
+from mapper.readings.model import DOUBTFUL_FLAG, Conditions, NewReading, Reading
+from mapper.survey.store import Survey, utc_now
 from mapper.units import canonical_unit, format_field, parse_field, parse_number, to_physics_sign
 
 #: Survey meta key holding the label of the point the surveyor stands at.

@@ -92,12 +92,15 @@ def fmt(value_v_per_m: float | None, unit: str) -> str:
 
 
 def print_notes(products) -> None:
-    """Print a pipeline run's notes: field-model remarks to stdout, warnings to stderr."""
+    """Print a run's notes (:class:`mapper.workflow.Note`): remarks to stdout, warnings to stderr.
+
+    The no-field reason is left to the command, which says it where the map would be.
+    """
     for note in products.notes:
-        if note.startswith("field model:"):
-            say(note)
-        elif note != products.no_field_reason:
-            warn(note)
+        if note.level == "remark":
+            say(note.text)
+        elif note.level == "warning":
+            warn(note.text)
 
 
 def check_output(path: str, suffix: str) -> Path:

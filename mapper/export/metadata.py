@@ -159,7 +159,7 @@ def metadata_rows(products: Products, exported_utc: str | None = None) -> list[M
         if f.unmapped_exceedances:
             add("findings", "exceeding_readings_outside_hotspots", ", ".join(map(str, f.unmapped_exceedances)))
     for i, note in enumerate(p.notes, start=1):
-        add("notes", f"note {i}", note)
+        add("notes", f"note {i}", f"{note.level}: {note.text}")
     for i, caution in enumerate(CAUTIONS, start=1):
         add("cautions", f"caution {i}", caution)
     return rows

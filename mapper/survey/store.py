@@ -6,13 +6,14 @@ import json
 import os
 import sqlite3
 from collections.abc import Iterable, Sequence
-from dataclasses import dataclass, replace
+from dataclasses import replace
 from datetime import UTC, datetime
 from pathlib import Path
 
+from mapper.defaults import DEFAULT_THRESHOLD_V_PER_M
 from mapper.errors import MapperError
 from mapper.plan.grid import Plan, PlanPoint
-from mapper.readings.model import READING_KINDS, Conditions, Reading
+from mapper.readings.model import READING_KINDS, Conditions, NewReading, Reading
 from mapper.site.model import Site
 from mapper.survey.lock import WriterLock
 from mapper.survey.schema import APPLICATION_ID, SCHEMA_VERSION, migrate
@@ -39,50 +40,6 @@ def to_utc_text(moment: datetime) -> str:
 def from_utc_text(text: str) -> datetime:
     """Parse :func:`to_utc_text` output."""
     return datetime.fromisoformat(text)
-
-
-@dataclass(frozen=True)
-class NewReading:
-    """A reading about to be stored.
-
-    Attributes
-    ----------
-    x, y : float
-        Position, site metres.
-    entered_value : float
-        The number as typed or read, in ``entered_unit`` and the survey's sign convention.
-    entered_unit : str
-        Unit of ``entered_value``.
-    value_v_per_m : float
-        The same field in V/m, physics sign convention.
-    kind : str
-        One of ``field``, ``reference``, ``zero``, ``calibration``.
-    point : str or None
-        Plan point label, or ``None`` for a free position.
-    time : datetime or None
-        When taken (UTC); ``None`` means now.
-    height_m : float or None
-        Meter height, metres.
-    meter_id : str or None
-        Meter; ``None`` means the survey's current meter.
-    note : str
-        Free text.
-    flags : tuple of str
-        Markers.
-    """
-
-    x: float
-    y: float
-    entered_value: float
-    entered_unit: str
-    value_v_per_m: float
-    kind: str = "field"
-    point: str | None = None
-    time: datetime | None = None
-    height_m: float | None = None
-    meter_id: str | None = None
-    note: str = ""
-    flags: tuple[str, ...] = ()
 
 
 class Survey:
@@ -121,7 +78,7 @@ class Survey:
         *,
         display_unit: str = "V/m",
         sign_convention: str = "physics",
-        threshold_v_per_m: float = 125 / 0.0254,
+        threshold_v_per_m: float = DEFAULT_THRESHOLD_V_PER_M,
         site_text: str | None = None,
         operator: str = "",
     ) -> Survey:
@@ -324,7 +281,7 @@ class Survey:
     @property
     def threshold_v_per_m(self) -> float:
         """The survey's action level, V/m."""
-        return float(self.get("threshold_v_per_m", repr(125 / 0.0254)))
+        return float(self.get("threshold_v_per_m", repr(DEFAULT_THRESHOLD_V_PER_M)))
 
     @property
     def site(self) -> Site:
@@ -496,6 +453,22 @@ class Survey:
             "SELECT * FROM readings WHERE id BETWEEN ? AND ? ORDER BY id", (ids[0], ids[-1])
         ).fetchall()
         return [_to_reading(r) for r in rows]
+
+    def reading_origins(self, ids: Iterable[int]) -> dict[int, dict]:
+        """Where each reading row came from: ``{id: {"source": ..., "recorded_utc": ...}}``.
+
+        Parameters
+        ----------
+        ids : iterable of int
+            Reading row ids; unknown ids are left out of the result.
+        """
+        wanted = {int(i) for i in ids}
+        if not wanted:
+            return {}
+        rows = self.conn.execute(
+            "SELECT id, source, recorded_utc FROM readings WHERE id BETWEEN ? AND ?", (min(wanted), max(wanted))
+        ).fetchall()
+        return {int(r[0]): {"source": r[1], "recorded_utc": r[2]} for r in rows if int(r[0]) in wanted}
 
     def readings(self, kind: str | None = "field") -> list[Reading]:
         """Current readings (not edited, undone or excluded), in the order they were recorded.
