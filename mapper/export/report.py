@@ -41,6 +41,8 @@ from mapper.features.contours import Levels
 from mapper.features.hotspots import MEASURED_NOTE
 from mapper.features.sources import LIMITATIONS, source_records
 from mapper.features.zone_results import zone_sentence
+from mapper.presentation import HOTSPOT_COLUMNS as HOTSPOT_HEADERS
+from mapper.presentation import hotspot_table
 from mapper.site.model import Site
 from mapper.survey.store import to_utc_text, utc_now
 from mapper.units import field_text_in, format_field, from_si, plain_number
@@ -419,18 +421,14 @@ def draw_map_page(fig: Figure, products: Products) -> None:
     fig.legend(handles=handles, loc="upper left", bbox_to_anchor=(0.795, 0.25), frameon=False, fontsize=7)
 
 
+#: Columns of the report's hotspot table (keys of :data:`mapper.presentation.HOTSPOT_COLUMNS`).
+HOTSPOT_COLUMNS = ("id", "polarity", "status", "area", "peak", "max_reading", "p_max", "readings", "nearest")
+
+
 def _hotspot_rows(products: Products) -> list[list[str]]:
     f = products.findings
-    unit = products.display_unit
-    rows = []
-    for h in (*f.hotspots, *f.zone_hotspots):
-        near = f"{h.nearest_asset} ({h.nearest_asset_m:.1f} m)" if h.nearest_asset is not None else "-"
-        rows.append([
-            h.id, h.polarity, h.status, f"{h.area_m2:.1f}", format_field(h.peak_v_per_m, unit, 3),
-            "-" if h.max_reading_v_per_m is None else format_field(h.max_reading_v_per_m, unit, 3),
-            "-" if h.p_exceed_max is None else f"{h.p_exceed_max:.2f}", str(len(h.reading_ids)),
-            textwrap.fill(near, 24),
-        ])
+    _, rows = hotspot_table((*f.hotspots, *f.zone_hotspots), products.display_unit, HOTSPOT_COLUMNS,
+                            wrap={"nearest": 24}, digits=3)
     return rows
 
 
@@ -480,8 +478,7 @@ def draw_findings_page(fig: Figure, products: Products) -> None:
         rows = _hotspot_rows(p)
         if rows:
             stops = (0.0, 0.032, 0.092, 0.157, 0.207, 0.272, 0.347, 0.392, 0.445)
-            col.row(["id", "polarity", "status", "area m²", "peak est.", "max reading", "P max", "readings",
-                     "nearest asset"], stops, bold=True)
+            col.row([HOTSPOT_HEADERS[c] for c in HOTSPOT_COLUMNS], stops, bold=True)
             for row in rows[:MAX_HOTSPOT_ROWS]:
                 col.row(row, stops)
             if len(rows) > MAX_HOTSPOT_ROWS:
