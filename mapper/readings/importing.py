@@ -13,6 +13,7 @@ from pathlib import Path
 import numpy as np
 import shapely
 
+from mapper.atomic_file import atomic_path
 from mapper.errors import MapperError
 from mapper.readings.model import READING_KINDS
 from mapper.site.model import Site
@@ -252,7 +253,7 @@ def write_rejected(path: str | Path, rejected: Sequence[RejectedRow]) -> Path:
     path = Path(path)
     out = path.with_name(path.stem + ".rejected.csv")
     columns = ["line", "reason"] + sorted({k for r in rejected for k in r.row if k is not None})
-    with out.open("w", newline="", encoding="utf-8") as handle:
+    with atomic_path(out) as tmp, open(tmp, "w", newline="", encoding="utf-8") as handle:
         writer = csv.DictWriter(handle, fieldnames=columns, extrasaction="ignore")
         writer.writeheader()
         for r in rejected:
