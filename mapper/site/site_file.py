@@ -256,11 +256,13 @@ def _refuse_non_finite(data: dict, source: str, text: str) -> None:
     """Refuse ``nan`` and ``inf`` anywhere in a site file (they would stall or poison the georeference
     and the plan), naming the table and key."""
     for table, value in data.items():
-        items = [(0, value)] if isinstance(value, dict) else list(enumerate(value)) if isinstance(value, list) else []
-        if not items and isinstance(value, float) and not math.isfinite(value):
+        if isinstance(value, float) and not math.isfinite(value):
             raise MapperError(f"'{table}' must be a finite number, got {value}", where=source)
-        for index, item in items:
-            for key, number in (item.items() if isinstance(item, dict) else []):
+        items = [value] if isinstance(value, dict) else value if isinstance(value, list) else []
+        for index, item in enumerate(items):
+            if not isinstance(item, dict):
+                continue  # a list that is not tables is refused by _tables
+            for key, number in item.items():
                 if isinstance(number, float) and not math.isfinite(number):
                     raise MapperError(f"'{key}' must be a finite number, got {number}",
                                       where=_where(source, text, table, index, key))
