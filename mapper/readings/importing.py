@@ -112,6 +112,21 @@ def site_xy_from_lonlat(site: Site, lon: np.ndarray, lat: np.ndarray) -> tuple[n
     return site.georef.inverse(e, n)
 
 
+#: A row outside the site whose lat and lon, swapped, lie within this of the site's centre (degrees)
+#: gets a "did you swap lon and lat?" hint (our choice: about 50 km).
+SWAP_HINT_DEG = 0.5
+
+
+def site_lonlat_centre(site: Site) -> tuple[float, float]:
+    """WGS 84 lon/lat (degrees) of the site outline's centroid, through its georeference."""
+    from pyproj import Transformer
+
+    c = site.outline.centroid
+    e, n = site.georef.forward(np.array([c.x]), np.array([c.y]))
+    lon, lat = Transformer.from_crs(site.georef.crs, "EPSG:4326", always_xy=True).transform(e, n)
+    return float(np.asarray(lon).ravel()[0]), float(np.asarray(lat).ravel()[0])
+
+
 def parse_readings_csv(
     path: str | Path,
     site: Site,
@@ -178,6 +193,7 @@ def parse_readings_csv(
                 lonlat_xy = site_xy_from_lonlat(site, lon, lat)
         except MapperError as exc:
             raise MapperError(exc.message, where=f"{path}:1") from None
+    swapped_xy = None  # the site's centre in lon/lat, found when a row falls outside
     for index, (line, row) in enumerate(records):
         column = ""
         try:
@@ -199,7 +215,15 @@ def parse_readings_csv(
                 y = parse_number(row["y"])
             column = "x" if lonlat_xy is None else "lon"
             if outline.distance(shapely.Point(x, y)) > OUTLINE_TOLERANCE_M:
-                raise _RowError(column, f"position ({x:.2f}, {y:.2f}) m is outside the site outline")
+                hint = ""
+                if lonlat_xy is not None:
+                    if swapped_xy is None:
+                        swapped_xy = site_lonlat_centre(site)
+                    c_lon, c_lat = swapped_xy
+                    near_swapped = abs(lat[index] - c_lon) < SWAP_HINT_DEG and abs(lon[index] - c_lat) < SWAP_HINT_DEG
+                    if near_swapped:
+                        hint = "; did you swap lon and lat? (swapped, it lies at the site)"
+                raise _RowError(column, f"position ({x:.2f}, {y:.2f}) m is outside the site outline{hint}")
             column = "value"
             row_unit = (row.get("unit") or "").strip() or unit
             value, value_unit, si = parse_field(row["value"], row_unit)

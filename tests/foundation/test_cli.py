@@ -220,3 +220,18 @@ def test_info_counts_every_kind_with_plurals_and_the_operator(tmp_path):
     # the drift rate in the survey's display unit
     drift = next(line for line in out.splitlines() if line.startswith("drift"))
     assert "kV/m per hour" in drift and "V/m per hour" not in drift.replace("kV/m per hour", "")
+
+
+def test_swapped_lon_lat_gets_a_hint(tmp_path):
+    # The outdoor sample yard lies near 13.75 E, 51.05 N; a row with the two swapped lands
+    # thousands of kilometres away: refused by name, with the likely cause.
+    survey = tmp_path / "yard.survey"
+    assert mapper("new", survey, "--site", SAMPLES / "east_yard.geojson", "--spacing", "8").returncode == 0
+    lines = (SAMPLES / "east_yard_readings.csv").read_text().splitlines()
+    t, lon, lat, *rest = lines[1].split(",")
+    bad = tmp_path / "swapped.csv"
+    bad.write_text("\n".join([lines[0], ",".join([t, lat, lon, *rest])]) + "\n")
+    before = digest(survey)
+    r = mapper("import", survey, bad)
+    assert_one_line_error(r, "swapped.csv:2", "outside the site outline", "did you swap lon and lat?")
+    assert digest(survey) == before
