@@ -19,6 +19,7 @@ from mapper.readings.importing import (
     write_rejected,
 )
 from mapper.survey.store import Survey
+from mapper.wording import plural
 
 
 def register(sub) -> None:
@@ -59,7 +60,7 @@ def run(args) -> int:
         if is_conditions_csv(args.file):
             notes = parse_conditions_csv(args.file, tz)
             survey.add_condition_notes([(n.rh_percent, n.temperature_c, n.note, n.time) for n in notes])
-            say(f"imported {len(notes)} condition notes into {survey.path}")
+            say(f"imported {plural(len(notes), 'condition note')} into {survey.path}")
             return 0
         parsed = parse_readings_csv(
             args.file,

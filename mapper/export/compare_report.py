@@ -30,13 +30,13 @@ from mapper.export.report import (
     draw_lines,
     draw_site,
     frame_axes,
-    local_span,
 )
 from mapper.features import colour_scale as cs
 from mapper.features.cautions import CAUTIONS
 from mapper.features.compare import Comparison
 from mapper.survey.store import to_utc_text, utc_now
 from mapper.units import format_field, from_si, plain_number
+from mapper.wording import local_span, plural
 from mapper.workflow import Products
 
 #: Largest number of hotspot-change rows printed (the GeoPackage's ``changes`` layer has all).
@@ -150,8 +150,8 @@ def draw_comparison_page(fig: Figure, cmp: Comparison, before: Products, after: 
         span = p.time_span()
         return local_span(span, p.site.timezone) if span else "no readings"
 
-    fig.text(0.04, 0.928, f"Before: {when(before)}, {len(before.readings)} readings  ·  after: {when(after)}, "
-             f"{len(after.readings)} readings", fontsize=9, va="top", color="#333333")
+    fig.text(0.04, 0.928, f"Before: {when(before)}, {plural(len(before.readings), 'reading')}  ·  after: {when(after)}, "
+             f"{plural(len(after.readings), 'reading')}", fontsize=9, va="top", color="#333333")
     fig.text(0.04, 0.905, f"Action level {format_field(t, unit)}  ·  before: {_method(before)}  ·  after: "
              f"{_method(after)}", fontsize=9, va="top", color="#333333")
     fig.text(0.04, 0.018, f"mapper {__version__}  ·  {to_utc_text(utc_now())[:16].replace('T', ' ')} UTC  ·  "

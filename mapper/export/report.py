@@ -46,7 +46,7 @@ from mapper.presentation import hotspot_table
 from mapper.site.model import Site
 from mapper.survey.store import to_utc_text, utc_now
 from mapper.units import field_text_in, format_field, from_si, plain_number
-from mapper.wording import local_span
+from mapper.wording import local_span, plural
 from mapper.workflow import Products
 
 #: A4 landscape, inches.
@@ -275,7 +275,7 @@ def _title(fig: Figure, products: Products, heading: str) -> None:
     span = p.time_span()
     when = local_span(span, p.site.timezone) if span else "no readings"
     method = (f"{p.grid.method}, cell {p.grid.cell_m:g} m" if p.grid is not None else "no field model")
-    fig.text(0.04, 0.925, f"Survey {when}  ·  {len(p.readings)} readings  ·  action level "
+    fig.text(0.04, 0.925, f"Survey {when}  ·  {plural(len(p.readings), 'reading')}  ·  action level "
              f"{format_field(p.threshold_v_per_m, p.display_unit)}  ·  {method}"
              + (f"  ·  operator {p.operator}" if p.operator else ""), fontsize=9, va="top", color="#333333")
     fig.text(0.04, 0.018, f"mapper {__version__}  ·  {to_utc_text(utc_now())[:16].replace('T', ' ')} UTC  ·  "
@@ -490,7 +490,7 @@ def draw_findings_page(fig: Figure, products: Products) -> None:
                      f"{format_field(p.threshold_v_per_m, unit)}.")
         if f.probable:
             extra = [r for r in f.probable if not r.hotspot_ids]
-            col.para(f"{len(f.probable)} region(s) where P(|E| ≥ action level) ≥ 0.5"
+            col.para(f"{plural(len(f.probable), 'region')} where P(|E| ≥ action level) ≥ 0.5"
                      + (f", {len(extra)} of them outside every hotspot (measure there)." if extra else "."), 7.5)
         if f.unmapped_exceedances:
             col.para(f"Readings at or above the action level outside every hotspot: "
@@ -518,7 +518,7 @@ def draw_findings_page(fig: Figure, products: Products) -> None:
     ranges = p.condition_ranges()
     rh, temp = ranges["rh_percent"], ranges["temperature_c"]
     if p.conditions:
-        col.para(f"{len(p.conditions)} condition notes; RH "
+        col.para(f"{plural(len(p.conditions), 'condition note')}; RH "
                  + (f"{rh[0]:g}–{rh[1]:g} %" if rh else "not noted") + "; temperature "
                  + (f"{temp[0]:g}–{temp[1]:g} °C" if temp else "not noted") + ".")
         notes = [c.note for c in p.conditions if c.note]
