@@ -328,6 +328,7 @@ def survey_products(
     use_stored: bool = True,
     unit: str | None = None,
     height_m: float | None = None,
+    on_step: Callable[[str], None] | None = None,
 ) -> Products:
     """Run the whole chain for one survey.
 
@@ -351,12 +352,15 @@ def survey_products(
         Display unit; default the survey's.
     height_m : float, optional
         Map the field at this height above the floor, metres (physical model only; builds anew).
+    on_step : callable, optional
+        Called with the name of each step as it starts (a spinner on a terminal shows it).
 
     Returns
     -------
     Products
         With ``grid`` and ``findings`` set, or ``no_field_reason`` saying why not.
     """
+    step = on_step or (lambda _text: None)
     if method is not None and method not in METHODS:
         raise MapperError(f"unknown method {method!r}; accepted: {', '.join(METHODS)}")
     site = survey.site
@@ -364,12 +368,14 @@ def survey_products(
     threshold = (resolve_threshold(threshold_v_per_m, survey.display_unit) if threshold_v_per_m is not None
                  else float(survey.threshold_v_per_m))
     notes: list[Note] = [Note("warning", w) for w in site.warnings]
+    step("reading the survey")
     everything = survey.readings(kind=None)
     controls = tuple(r for r in everything if r.kind in ("zero", "reference"))
     meters = load_meters(survey)
     corrections = None
     readings: tuple[CorrectedReading, ...] = ()
     if any(r.kind == "field" for r in everything):
+        step("correcting the readings")
         corrections = correct(everything, meters)
         readings = corrections.readings
         notes.extend(Note("warning", w) for w in corrections.warnings)
@@ -381,12 +387,14 @@ def survey_products(
     elif positions < MIN_FIELD_POSITIONS:
         model = _FieldModel(reason=too_few_positions(positions))
     else:
+        step("field model")
         model = _field_model(survey, xy, values, site.outline, method, cell_m, use_stored,
                              field_heights(readings), height_m)
     notes.extend(model.remarks)
     grid, reason = model.grid, model.reason
     findings = None
     if grid is not None:
+        step("hotspots, keep-away checks and advice")
         findings = analyse(
             grid, site, readings, threshold, unit=unit, planned=survey.plan.points
         )

@@ -16,6 +16,7 @@ import numpy as np
 
 from mapper.cli.commands import summary
 from mapper.cli.common import check_output, fmt, say, table, threshold_arg, warn
+from mapper.cli.progress import working
 from mapper.errors import MapperError
 from mapper.features import compare_fields
 from mapper.features.cautions import CAUTIONS
@@ -57,8 +58,11 @@ def run(args) -> int:
     png = None if args.png is None else (Path(args.png) if args.png else pdf.with_suffix(".png"))
     if png is not None:
         check_output(str(png), ".png")
-    before = survey_file_products(args.before, args.threshold).require_field()
-    after = survey_file_products(args.after, args.threshold).require_field()
+    with working("compare") as step:
+        step("before")
+        before = survey_file_products(args.before, args.threshold).require_field()
+        step("after")
+        after = survey_file_products(args.after, args.threshold).require_field()
     threshold = before.threshold_v_per_m
     unit = before.display_unit
     messages = [f"{args.before}: {m}" for m in before.warnings]
@@ -84,8 +88,11 @@ def run(args) -> int:
     )
     from mapper.export.compare_report import write_comparison_report
 
-    write_comparison_gpkg(out, cmp, before.site, unit)
-    printed = write_comparison_report(cmp, before, after, pdf, png_path=png)
+    with working("compare") as step:
+        step("writing the GeoPackage")
+        write_comparison_gpkg(out, cmp, before.site, unit)
+        step("drawing the comparison")
+        printed = write_comparison_report(cmp, before, after, pdf, png_path=png)
     if args.json:
         say(
             json.dumps(

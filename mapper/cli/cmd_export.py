@@ -4,6 +4,7 @@ from __future__ import annotations
 
 from mapper.cli.commands import summary
 from mapper.cli.common import check_output, positive_float, print_notes, say, threshold_arg
+from mapper.cli.progress import working
 from mapper.field.build import METHODS
 from mapper.survey.store import Survey
 from mapper.workflow import survey_products
@@ -35,12 +36,15 @@ def run(args) -> int:
     check_output(args.out, ".gpkg")
     if args.csv is not None:
         check_output(args.csv, ".csv")
-    with Survey.open(args.survey) as survey:
-        products = survey_products(survey, args.threshold, args.method, args.cell, height_m=args.height)
+    with working("export") as step, Survey.open(args.survey) as survey:
+        products = survey_products(survey, args.threshold, args.method, args.cell, height_m=args.height,
+                                   on_step=step)
     print_notes(products)
-    from mapper.export.bundle import export_products  # geopandas, rasterio: load when writing
+    with working("export") as step:
+        step("writing the GeoPackage and GeoTIFF")
+        from mapper.export.bundle import export_products  # geopandas, rasterio: load when writing
 
-    result = export_products(products, args.out, csv_path=args.csv)
+        result = export_products(products, args.out, csv_path=args.csv)
     for line in result.lines(products):
         say(line)
     return 0

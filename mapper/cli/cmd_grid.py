@@ -4,6 +4,7 @@ from __future__ import annotations
 
 from mapper.cli.commands import summary
 from mapper.cli.common import fmt, neighbors_arg, positive_float, say, table, warn
+from mapper.cli.progress import working
 from mapper.corrections.pipeline import correct_survey
 from mapper.errors import MapperError
 from mapper.field import METHODS, MODELS, Variogram, field_to_bytes
@@ -77,8 +78,10 @@ def run(args) -> int:
         positions = distinct_positions(xy)
         if positions < MIN_FIELD_POSITIONS:
             raise MapperError(too_few_positions(positions), where=str(survey.path))
-        grid = build_survey_field(survey.site, corrected.readings, method=method, cell_m=args.cell,
-                                  neighbors=args.neighbors, variogram=variogram, height_m=args.height)
+        with working("grid") as step:
+            step(f"field model ({method}, {positions} positions)")
+            grid = build_survey_field(survey.site, corrected.readings, method=method, cell_m=args.cell,
+                                      neighbors=args.neighbors, variogram=variogram, height_m=args.height)
         summary = {
             "method": grid.method,
             "reason": grid.reason,

@@ -6,6 +6,7 @@ from pathlib import Path
 
 from mapper.cli.commands import summary
 from mapper.cli.common import check_output, positive_float, print_notes, say, threshold_arg
+from mapper.cli.progress import working
 from mapper.field.build import METHODS
 from mapper.survey.store import Survey
 from mapper.workflow import survey_products
@@ -34,13 +35,16 @@ def run(args) -> int:
     check_output(args.out, ".pdf")
     if args.png:
         check_output(args.png, ".png")
-    with Survey.open(args.survey) as survey:
-        products = survey_products(survey, args.threshold, args.method, args.cell, height_m=args.height)
+    with working("report") as step, Survey.open(args.survey) as survey:
+        products = survey_products(survey, args.threshold, args.method, args.cell, height_m=args.height,
+                                   on_step=step)
     print_notes(products)
     png = None if args.png is None else (Path(args.png) if args.png else Path(args.out).with_suffix(".png"))
-    from mapper.export.report import write_report  # matplotlib: load only when drawing
+    with working("report") as step:
+        step("drawing the pages")
+        from mapper.export.report import write_report  # matplotlib: load only when drawing
 
-    result = write_report(products, args.out, png_path=png)
+        result = write_report(products, args.out, png_path=png)
     say(f"wrote {result.pdf} ({result.pages} pages)")
     if result.png is not None:
         say(f"wrote {result.png} (the map alone)")

@@ -235,3 +235,35 @@ def test_swapped_lon_lat_gets_a_hint(tmp_path):
     r = mapper("import", survey, bad)
     assert_one_line_error(r, "swapped.csv:2", "outside the site outline", "did you swap lon and lat?")
     assert digest(survey) == before
+
+
+def test_long_commands_show_their_step_on_a_terminal_and_stay_quiet_otherwise(tmp_path):
+    import pty
+
+    survey = tmp_path / "hall.survey"
+    assert mapper("new", survey, "--site", SAMPLES / "north_hall.toml", "--spacing", "2").returncode == 0
+    assert mapper("import", survey, SAMPLES / "north_hall_readings.csv").returncode == 0
+    # Not a terminal: stderr carries no spinner, stdout is what scripts read.
+    quiet = mapper("report", survey, tmp_path / "a.pdf")
+    assert quiet.returncode == 0, quiet.stderr
+    assert "report:" not in quiet.stderr and "…" not in quiet.stderr
+    # stderr a terminal (a pseudo-terminal here): the spinner names the step as it goes.
+    leader, follower = pty.openpty()
+    env = dict(os.environ, COLUMNS="100", TERM="xterm")
+    proc = subprocess.Popen([sys.executable, "-m", "mapper", "report", str(survey), str(tmp_path / "b.pdf")],
+                            stdout=subprocess.PIPE, stderr=follower, env=env)
+    os.close(follower)
+    seen = b""
+    while True:
+        try:
+            chunk = os.read(leader, 4096)
+        except OSError:
+            break
+        if not chunk:
+            break
+        seen += chunk
+    out, _ = proc.communicate(timeout=300)
+    os.close(leader)
+    assert proc.returncode == 0
+    assert b"report:" in seen and (b"field model" in seen or b"drawing the pages" in seen)
+    assert b"wrote" in out and b"report:" not in out
