@@ -24,7 +24,7 @@ _WHERE = {
     "Products": "pipeline",
     "survey_file_products": "pipeline",
     "survey_products": "pipeline",
-    "grid_transform": "raster",
+    "north_up": "raster",
     "write_geotiff": "raster",
     "ReportResult": "report",
     "write_report": "report",

@@ -41,7 +41,7 @@ class ExportResult:
         if self.tif is not None:
             g = products.grid
             out.append(
-                f"wrote {self.tif}: {len(g.x)} x {len(g.y)} cells of {g.cell_m:g} m, bands estimate and "
+                f"wrote {self.tif}: north-up, cells of {g.cell_m:g} m, bands estimate and "
                 f"standard deviation in V/m, nodata outside the site"
             )
         else:
@@ -82,7 +82,7 @@ def export_products(products: Products, gpkg_path: str | Path, *, csv_path: str 
     removed = False
     if products.grid is not None:
         tif = write_geotiff(
-            products.grid, products.crs, tif_path,
+            products.grid, products.crs, tif_path, outline=products.site.outline,
             tags={"threshold_v_per_m": f"{products.threshold_v_per_m:.10g}", "site": products.name,
                   "sign_convention": "physics (positive: field pointing up)"},
         )
