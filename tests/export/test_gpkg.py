@@ -19,8 +19,9 @@ from mapper.export.styles import band_colors
 
 # The sample hall's field model is the physical one (it wins auto's cross-validation), so its
 # export also holds the source inventory.
-SPATIAL = ("readings", "site", "zones", "assets", "contours", "bands", "hotspots", "probable_exceedance",
-           "violations", "advice", "sources")
+SPATIAL = ("readings", "site", "zones", "assets", "asset_lines", "asset_points", "contours", "bands", "hotspots",
+           "probable_exceedance", "violations", "advice", "sources")
+RASTERS = ("field_estimate", "field_std")
 
 
 @pytest.fixture(scope="module")
@@ -59,10 +60,12 @@ def test_one_contents_row_per_layer_with_crs(hall, conn):
     rows = conn.execute("SELECT table_name, data_type, srs_id FROM gpkg_contents").fetchall()
     names = [r[0] for r in rows]
     assert len(names) == len(set(names))
-    expected = {*SPATIAL, METADATA_TABLE, "layer_styles"}
+    expected = {*SPATIAL, *RASTERS, METADATA_TABLE, "layer_styles"}
     assert set(names) == expected
     tables = {r[0] for r in conn.execute("SELECT name FROM sqlite_master WHERE type = 'table'")}
     assert expected <= tables
+    # OGC 17-066r1: a float coverage is data_type '2d-gridded-coverage'.
+    assert {r[0] for r in rows if r[1] == "2d-gridded-coverage"} == set(RASTERS)
     features = {r[0]: r[2] for r in rows if r[1] == "features"}
     assert set(features) == set(SPATIAL)
     # Every spatial layer carries the site's projected CRS (the sample names EPSG:32633).
@@ -153,9 +156,10 @@ def test_metadata_table(hall):
 def test_layer_styles(hall, conn):
     rows = conn.execute("SELECT f_table_name, f_geometry_column, styleQML, useAsDefault FROM layer_styles").fetchall()
     styled = {r[0] for r in rows}
-    assert {"bands", "hotspots", "readings", "contours", "site", "zones", "assets"} <= styled
+    assert {"bands", "hotspots", "readings", "contours", "site", "zones", "assets", "asset_lines", "asset_points",
+            "field_estimate", "field_std"} <= styled
     qml = {r[0]: ET.fromstring(r[2].split("\n", 1)[1]) for r in rows}
-    assert all(r[1] == "geom" and r[3] == 1 for r in rows)
+    assert all(r[1] == ("" if r[0] in RASTERS else "geom") and r[3] == 1 for r in rows)
     f = hall["products"].findings
     cats = qml["bands"].find("renderer-v2").find("categories")
     assert len(cats) == len(f.bands)

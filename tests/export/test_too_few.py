@@ -25,7 +25,8 @@ def test_export_without_field(tmp_path, box_survey, capsys):
     assert status == 0
     assert "no field layers" in text and f"{MIN_FIELD_POSITIONS} or more distinct positions" in text
     layers = {name for name, _ in pyogrio.list_layers(out)}
-    assert layers == {"readings", "site", "zones", "assets", "survey_metadata", "layer_styles"}
+    assert layers == {"readings", "site", "zones", "assets", "asset_lines", "asset_points", "survey_metadata",
+                      "layer_styles"}
     assert len(pyogrio.read_dataframe(out, layer="readings")) == MIN_FIELD_POSITIONS - 1
     assert not stale.exists()  # an older GeoTIFF must not pass for this survey's field
     conn = sqlite3.connect(out)
