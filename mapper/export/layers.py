@@ -214,21 +214,26 @@ HOTSPOT_COLUMNS = (
 )
 
 
-def hotspots_layer(products: Products) -> Layer:
-    """Hotspots at the survey threshold, then those at zone limits (``zone`` set)."""
-    f = products.findings
-    unit = products.display_unit
-    spots = (*f.hotspots, *f.zone_hotspots)
-    records = [{
+def hotspot_record(h, unit: str) -> dict:
+    """One hotspot's attributes (:data:`HOTSPOT_COLUMNS`); SI with a display-unit peak."""
+    return {
         "hotspot_id": h.id, "polarity": h.polarity, "status": h.status, "area_m2": h.area_m2,
         "threshold_v_per_m": h.threshold_v_per_m, "peak_v_per_m": h.peak_v_per_m,
         "peak_display": from_si(h.peak_v_per_m, unit), "display_unit": unit,
         "peak_x_site_m": h.peak_x, "peak_y_site_m": h.peak_y, "mean_v_per_m": h.mean_v_per_m,
         "n_readings": len(h.reading_ids), "reading_ids": ",".join(map(str, h.reading_ids)),
-        "max_reading_v_per_m": h.max_reading_v_per_m, "p_exceed_max": h.p_exceed_max,
-        "nearest_asset": h.nearest_asset, "nearest_asset_m": h.nearest_asset_m,
+        "max_reading_v_per_m": _finite(h.max_reading_v_per_m), "p_exceed_max": _finite(h.p_exceed_max),
+        "nearest_asset": h.nearest_asset, "nearest_asset_m": _finite(h.nearest_asset_m),
         "zones": ",".join(h.zones), "zone": h.zone,
-    } for h in spots]
+    }
+
+
+def hotspots_layer(products: Products) -> Layer:
+    """Hotspots at the survey threshold, then those at zone limits (``zone`` set)."""
+    f = products.findings
+    unit = products.display_unit
+    spots = (*f.hotspots, *f.zone_hotspots)
+    records = [hotspot_record(h, unit) for h in spots]
     frame = _frame(records, [h.geometry for h in spots], products, HOTSPOT_COLUMNS)
     for col in ("max_reading_v_per_m", "p_exceed_max", "nearest_asset_m"):
         frame[col] = frame[col].astype(float)
@@ -311,4 +316,4 @@ FIELD_LAYERS = ("contours", "bands", "hotspots", "probable_exceedance", "violati
 PHYSICS_LAYERS = ("sources",)
 
 __all__ = ["ASSET_COLUMNS", "ASSET_LAYERS", "FIELD_LAYERS", "HOTSPOT_COLUMNS", "READING_COLUMNS", "Layer",
-           "all_layers", "asset_layers", "reading_records"]
+           "all_layers", "asset_layers", "hotspot_record", "reading_records"]

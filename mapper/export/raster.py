@@ -100,6 +100,58 @@ def bilinear(x: np.ndarray, y: np.ndarray, values: np.ndarray, px: np.ndarray, p
             + (1 - tx) * ty * v[j1, i0] + tx * ty * v[j1, i1])
 
 
+def resample_north_up(x: np.ndarray, y: np.ndarray, arrays: list[np.ndarray], ecrs: ExportCRS,
+                      outline: BaseGeometry) -> tuple[list[np.ndarray], Affine, float, bool]:
+    """Grids of cell centres in site metres onto one north-up grid of the export CRS.
+
+    Parameters
+    ----------
+    x, y : ndarray
+        Increasing, equally spaced cell-centre coordinates, site metres.
+    arrays : list of ndarray, shape (len(y), len(x))
+        Values (NaN where there are none).
+    ecrs : ExportCRS
+        Export CRS and georeference.
+    outline : shapely geometry
+        Region with values, site metres; cells whose centre is outside are NaN.
+
+    Returns
+    -------
+    arrays : list of ndarray, float32
+        Row 0 north.
+    transform : affine.Affine
+        Pixel corner -> CRS, no rotation terms.
+    cell : float
+        Cell edge, CRS metres.
+    resampled : bool
+        False for a local site (the arrays as they are, flipped north-up).
+    """
+    c = float(x[1] - x[0]) if len(x) > 1 else float(y[1] - y[0])
+    if ecrs.georef is None:
+        transform = Affine(c, 0.0, float(x[0]) - 0.5 * c, 0.0, -c, float(y[-1]) + 0.5 * c)
+        return [np.asarray(a, dtype=float)[::-1].astype(np.float32) for a in arrays], transform, c, False
+    g = ecrs.georef
+    cell = c * g.scale
+    ox, oy = shapely.get_coordinates(shapely.boundary(outline)).T
+    e, n = g.forward(ox, oy)
+    west = math.floor(float(np.min(e)) / cell) * cell
+    north = math.ceil(float(np.max(n)) / cell) * cell
+    cols = max(1, math.ceil((float(np.max(e)) - west) / cell))
+    rows = max(1, math.ceil((north - float(np.min(n))) / cell))
+    ee, nn = np.meshgrid(west + cell * (np.arange(cols) + 0.5), north - cell * (np.arange(rows) + 0.5))
+    sx, sy = g.inverse(ee, nn)
+    sx, sy = np.asarray(sx), np.asarray(sy)
+    inside = shapely.contains_xy(outline, sx, sy)
+    out = []
+    for a in arrays:
+        a = np.asarray(a, dtype=float)
+        if np.isfinite(a).any():
+            out.append(np.where(inside, bilinear(x, y, fill_nearest(a), sx, sy), np.nan).astype(np.float32))
+        else:
+            out.append(np.full(sx.shape, np.nan, dtype=np.float32))
+    return out, Affine(cell, 0.0, west, 0.0, -cell, north), cell, True
+
+
 def north_up(grid: FieldGrid, ecrs: ExportCRS, outline: BaseGeometry) -> NorthUp:
     """The field model on a north-up grid of the export CRS.
 
@@ -116,31 +168,10 @@ def north_up(grid: FieldGrid, ecrs: ExportCRS, outline: BaseGeometry) -> NorthUp
     -------
     NorthUp
     """
-    c = grid.cell_m
     est = np.asarray(grid.estimate, dtype=float)
     std = np.where(np.isfinite(est), np.asarray(grid.std, dtype=float), np.nan)
-    if ecrs.georef is None:
-        transform = Affine(c, 0.0, float(grid.x[0]) - 0.5 * c, 0.0, -c, float(grid.y[-1]) + 0.5 * c)
-        return NorthUp(est[::-1].astype(np.float32), std[::-1].astype(np.float32), transform, c, False)
-    g = ecrs.georef
-    cell = c * g.scale
-    ox, oy = shapely.get_coordinates(shapely.boundary(outline)).T
-    e, n = g.forward(ox, oy)
-    west = math.floor(float(np.min(e)) / cell) * cell
-    north = math.ceil(float(np.max(n)) / cell) * cell
-    cols = max(1, math.ceil((float(np.max(e)) - west) / cell))
-    rows = max(1, math.ceil((north - float(np.min(n))) / cell))
-    ee, nn = np.meshgrid(west + cell * (np.arange(cols) + 0.5), north - cell * (np.arange(rows) + 0.5))
-    sx, sy = g.inverse(ee, nn)
-    sx, sy = np.asarray(sx), np.asarray(sy)
-    inside = shapely.contains_xy(outline, sx, sy)
-    out_est = np.where(inside, bilinear(grid.x, grid.y, fill_nearest(est), sx, sy), np.nan)
-    if np.isfinite(std).any():
-        out_std = np.where(inside, bilinear(grid.x, grid.y, fill_nearest(std), sx, sy), np.nan)
-    else:
-        out_std = np.full(out_est.shape, np.nan)
-    return NorthUp(out_est.astype(np.float32), out_std.astype(np.float32),
-                   Affine(cell, 0.0, west, 0.0, -cell, north), cell, True)
+    (e, s), transform, cell, resampled = resample_north_up(grid.x, grid.y, [est, std], ecrs, outline)
+    return NorthUp(e, s, transform, cell, resampled)
 
 
 def overview_factors(width: int, height: int) -> list[int]:
@@ -210,4 +241,5 @@ def write_geotiff(grid: FieldGrid, ecrs: ExportCRS, path: str | Path, *, outline
     return path
 
 
-__all__ = ["BAND_NAMES", "NorthUp", "bilinear", "fill_nearest", "north_up", "overview_factors", "write_geotiff"]
+__all__ = ["BAND_NAMES", "NorthUp", "bilinear", "fill_nearest", "north_up", "overview_factors", "resample_north_up",
+           "write_geotiff"]

@@ -174,3 +174,31 @@ def test_hotspot_labels_outrank_probable_exceedance_labels(conn):
     assert int(prob.find("placement").get("priority")) < 10
     assert prob.find("rendering").get("obstacle") == "0"
     assert prob.find("placement").get("placement") != hot.find("placement").get("placement")
+
+
+def test_comparison_follows_the_survey_conventions(comparison, hall):
+    path = comparison["path"]
+    main = set(pyogrio.read_info(hall["result"].gpkg.path, layer="hotspots")["fields"])
+    for side in ("before", "after"):
+        fields = set(pyogrio.read_info(path, layer=f"hotspots_{side}")["fields"])
+        assert main <= fields and fields - main == {"change"}, side
+    hot = gpd.read_file(path, layer="hotspots_after")
+    assert len(hot) >= 1 and {"hotspot_id", "peak_x_site_m", "n_readings"} <= set(hot.columns)
+    conn = sqlite3.connect(path)
+    try:
+        # Open band ends are NULL, never +-inf (SQLite stores inf as a REAL 'Inf').
+        ends = conn.execute("SELECT lower_v_per_m, upper_v_per_m FROM difference_bands").fetchall()
+        assert ends and all(v is None or math.isfinite(v) for row in ends for v in row)
+        assert any(row[0] is None for row in ends) and any(row[1] is None for row in ends)
+        described = {r[0] for r in conn.execute("SELECT table_name FROM gpkg_data_columns")}
+        assert {"hotspots_after", "difference_bands", "summary"} <= described
+    finally:
+        conn.close()
+    # The difference coverage agrees with after - before of the two field models at a node.
+    cmp = comparison["cmp"]
+    with rasterio.open(path, table="difference") as ds:
+        assert ds.transform.b == 0 and ds.transform.d == 0 and ds.units == ("V/m",)
+        band = ds.read(1, masked=True)
+        assert band.count() > 0
+        assert float(band.max()) <= float(np.nanmax(cmp.difference)) + 1e-3
+        assert float(band.min()) >= float(np.nanmin(cmp.difference)) - 1e-3
