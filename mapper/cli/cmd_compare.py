@@ -83,6 +83,7 @@ def run(args) -> int:
         write_comparison_gpkg,
     )
     from mapper.export.compare_report import write_comparison_report
+    from mapper.export.geojson import crs_statement
 
     write_comparison_gpkg(out, cmp, before.site, unit)
     printed = write_comparison_report(cmp, before, after, pdf, png_path=png)
@@ -95,6 +96,7 @@ def run(args) -> int:
                     "out": str(out),
                     "pdf": str(printed.pdf),
                     "png": None if printed.png is None else str(printed.png),
+                    "crs": crs_statement(before.site),
                     "summary": cmp.summary.to_dict(),
                     "changes": [c.to_dict() for c in cmp.changes],
                     "warnings": messages,
