@@ -6,7 +6,8 @@ geometries, a stored style (QML and SLD) for every layer, descriptions in ``gpkg
 column descriptions and units in ``gpkg_data_columns`` and the summary also as GDAL dataset
 metadata. The difference grid (after - before, V/m) is a float coverage ``difference``,
 north-up in the export CRS, with its unit, field name, description and nodata, coloured on the
-action-level scale like the maps.
+action-level scale like the maps; its style is also written beside the file (``OUT.qml``,
+``OUT.sld``). A desktop GIS project stored in the file opens the layers in order, styled.
 """
 
 from __future__ import annotations
@@ -29,6 +30,7 @@ from mapper.export.crs import ExportCRS, export_crs, transform_all
 from mapper.export.gpkg import GPKG_VERSION
 from mapper.export.layers import HOTSPOT_COLUMNS, hotspot_record
 from mapper.export.metadata import MetaRow, write_gdal_metadata
+from mapper.export.project import ProjectLayer, write_project
 from mapper.export.raster import resample_north_up
 from mapper.features import Comparison, bands
 from mapper.features import colour_scale as cs
@@ -47,6 +49,8 @@ LAYERS = (
 )
 #: Name of the raster table holding the difference grid.
 RASTER = "difference"
+#: Drawing order of the stored project, top first.
+PROJECT_ORDER = ("hotspot_changes", "hotspots_after", "hotspots_before", "common_region", "difference_bands", RASTER)
 #: Colours of the change kinds (our choice; common practice, no source).
 CHANGE_COLORS = {"appeared": "#d7301f", "grew": "#fc8d59", "unchanged": "#737373", "shrank": "#6baed6",
                  "cleared": "#2171b5"}
@@ -213,8 +217,22 @@ def write_comparison_gpkg(path: str | Path, cmp: Comparison, site: Site, unit: s
                                 "V/m" if k.endswith("v_per_m") else "m2" if k.endswith("m2") else "")
                         for k, v in summary.items()]
                 write_gdal_metadata(conn, rows, st.utc_stamp())
+                qml = {s.table: s.qml for s in styles}
+                layers = [ProjectLayer(name, qml[name], None if name == RASTER else "MultiPolygon",
+                                       name not in ("hotspots_before", RASTER))
+                          for name in PROJECT_ORDER]
+                x0, y0, x1, y1 = ecrs.geometry(site.outline).bounds
+                pad = 0.05 * max(x1 - x0, y1 - y0)
+                write_project(conn, layers, path.name, ecrs, (x0 - pad, y0 - pad, x1 + pad, y1 + pad),
+                              f"{site.name}: after - before", st.utc_stamp())
         finally:
             conn.close()
+    # The style beside the file too: desktop GIS releases that read raster styles only from a
+    # sidecar OUT.qml (not from layer_styles) then open the difference coloured as well.
+    raster_style = next(s for s in styles if s.table == RASTER)
+    for suffix, text in ((".qml", raster_style.qml), (".sld", raster_style.sld)):
+        with atomic_path(path.with_suffix(suffix)) as tmp:
+            tmp.write_text(text, encoding="utf-8")
 
 
 __all__ = ["CHANGE_COLORS", "LAYERS", "RASTER", "comparison_styles", "difference_raster", "write_comparison_gpkg"]

@@ -23,6 +23,7 @@ from mapper.export.coverage import Coverage, write_coverage
 from mapper.export.layers import Layer, all_layers
 from mapper.export.metadata import METADATA_TABLE, metadata_rows, write_gdal_metadata
 from mapper.export.pipeline import Products
+from mapper.export.project import ProjectLayer, write_project
 from mapper.export.raster import north_up
 
 
@@ -103,6 +104,27 @@ def field_coverages(products: Products) -> list[Coverage]:
 GPKG_VERSION = "1.2"
 
 
+#: Drawing order of the stored project, top first; rasters and layers not listed stay out.
+PROJECT_ORDER = ("hotspots", "probable_exceedance", "advice", "violations", "readings", "asset_points",
+                 "asset_lines", "assets", "zones", "contours", "site", "bands", "field_estimate", "field_std")
+#: Layers in the project but unchecked when it opens (the bands show the same field).
+PROJECT_HIDDEN = ("field_estimate", "field_std")
+
+
+def project_layers(layers: list[Layer], styles: list[st.LayerStyle]) -> list[ProjectLayer]:
+    """The stored project's layers, top first, each with its stored style."""
+    qml = {s.table: s.qml for s in styles}
+    gtype = {layer.name: layer.geometry_type for layer in layers}
+    return [ProjectLayer(name, qml[name], gtype.get(name), name not in PROJECT_HIDDEN)
+            for name in PROJECT_ORDER if name in qml]
+
+
+def _bounds(geom, margin: float = 0.05) -> tuple[float, float, float, float]:
+    x0, y0, x1, y1 = geom.bounds
+    dx, dy = (x1 - x0) * margin, (y1 - y0) * margin
+    return x0 - dx, y0 - dy, x1 + dx, y1 + dy
+
+
 def _write_layer(path: Path, layer: Layer) -> None:
     frame = layer.frame
     kwargs = {"promote_to_multi": True} if layer.geometry_type.startswith("Multi") else {}
@@ -163,6 +185,8 @@ def write_geopackage(products: Products, path: str | Path, *, exported_utc: str 
                 )
                 write_data_columns(conn, [layer.name for layer in layers], products.display_unit)
                 write_gdal_metadata(conn, rows, st.utc_stamp())
+                write_project(conn, project_layers(layers, styles), path.name, products.crs,
+                              _bounds(products.crs.geometry(products.site.outline)), products.name, st.utc_stamp())
         finally:
             conn.close()
         counts["layer_styles"] = len(styles)

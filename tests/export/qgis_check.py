@@ -10,6 +10,7 @@ style was applied; the stored project's layer order; the labels drawn when rende
 from __future__ import annotations
 
 import json
+import os
 import sqlite3
 import sys
 import tempfile
@@ -31,7 +32,7 @@ def main(argv: list[str]) -> int:
     except ImportError as exc:
         print(json.dumps({"skip": f"cannot import qgis.core: {exc}"}))
         return 3
-    gpkg = Path(argv[0])
+    gpkg = Path(argv[0]).resolve()
     tif = Path(argv[1]) if len(argv) > 1 and argv[1] else None
     png = Path(argv[2]) if len(argv) > 2 else Path(tempfile.mkdtemp()) / "map.png"
     app = QgsApplication([], False)
@@ -43,6 +44,17 @@ def main(argv: list[str]) -> int:
     has_project = bool(conn.execute(
         "SELECT count(*) FROM sqlite_master WHERE name = 'qgis_projects'").fetchone()[0])
     conn.close()
+    project = QgsProject.instance()
+    layers = []
+    if has_project:
+        ok = project.read(f"geopackage:{gpkg}?projectName=map")
+        out["project_read"] = bool(ok)
+        root = project.layerTreeRoot()
+        out["project_order"] = [n.name() for n in root.findLayers()]
+        layers = [n.layer() for n in root.findLayers() if n.layer() is not None and n.isVisible()]
+        out["project_valid"] = {n.name(): bool(n.layer() and n.layer().isValid()) for n in root.findLayers()}
+        out["project_renderers"] = {n.name(): n.layer().renderer().type() for n in root.findLayers()
+                                    if n.layer() is not None and n.layer().isValid()}
     for table, kind in contents:
         if kind == "features":
             layer = QgsVectorLayer(f"{gpkg}|layername={table}", table, "ogr")
@@ -71,17 +83,6 @@ def main(argv: list[str]) -> int:
             out["tif"]["classes"] = len(ramp.colorRampItemList()) if ramp else 0
             out["tif"]["ramp_type"] = int(ramp.colorRampType()) if ramp else None
             out["tif"]["band"] = layer.renderer().band() if hasattr(layer.renderer(), "band") else None
-    project = QgsProject.instance()
-    layers = []
-    if has_project:
-        ok = project.read(f"geopackage:{gpkg}?projectName=map")
-        out["project_read"] = bool(ok)
-        root = project.layerTreeRoot()
-        out["project_order"] = [n.name() for n in root.findLayers()]
-        layers = [n.layer() for n in root.findLayers() if n.layer() is not None and n.isVisible()]
-        out["project_valid"] = {n.name(): bool(n.layer() and n.layer().isValid()) for n in root.findLayers()}
-        out["project_renderers"] = {n.name(): n.layer().renderer().type() for n in root.findLayers()
-                                    if n.layer() is not None and n.layer().isValid()}
     if not layers:
         order = ["hotspots", "probable_exceedance", "advice", "readings", "assets", "asset_lines", "zones",
                  "site", "contours", "bands", "field_estimate"]
@@ -100,7 +101,7 @@ def main(argv: list[str]) -> int:
     for lyr in layers:
         if lyr.name() == "site" or extent is None:
             extent = lyr.extent()
-    site = [lyr for lyr in layers if lyr.name() == "site"]
+    site = [lyr for lyr in layers if lyr.name() in ("site", "common_region")]
     if site:
         extent = site[0].extent()
     extent.scale(1.1)
@@ -120,9 +121,10 @@ def main(argv: list[str]) -> int:
             drawn.setdefault(name, []).append(label.labelText)
     out["labels_drawn"] = drawn
     out["png"] = str(png)
-    print(json.dumps(out))
-    app.exitQgis()
-    return 0
+    print(json.dumps(out), flush=True)
+    # Leave without tearing the GIS down: its exit with layers still alive can crash the process
+    # after the report is out, which would hide a good result behind a signal.
+    os._exit(0)
 
 
 if __name__ == "__main__":
