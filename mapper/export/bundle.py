@@ -43,7 +43,8 @@ class ExportResult:
             g = products.grid
             out.append(
                 f"wrote {self.tif}: north-up, cells of {g.cell_m:g} m, bands estimate and "
-                f"standard deviation in V/m, nodata outside the site"
+                f"standard deviation in V/m, nodata outside the site; style {self.tif.with_suffix('.qml').name} "
+                f"and {self.tif.with_suffix('.sld').name} beside it"
             )
         else:
             out.append(f"no field layers and no GeoTIFF: {products.no_field_reason}")

@@ -223,16 +223,16 @@ def outline_qml(color: str, *, width_mm: float = 0.6, dashed: bool = False, labe
 
 
 def probable_qml() -> str:
-    """Probable-exceedance regions dashed amber, labelled along their edge.
+    """Probable-exceedance regions dashed amber, labelled just outside their edge.
 
     Their labels rank below hotspot labels and never push them away: the regions are no
-    obstacle for other labels, and the label sits on the perimeter, not over the centre where a
-    hotspot id usually is.
+    obstacle for other labels, and the label is placed outside the region (the desktop GIS's
+    "outside polygons" placement), not over the centre where a hotspot id usually is.
     """
     root, geom = _doc(2)
     _single(root, "fill", color=PROBABLE_COLOR, style="no", outline=PROBABLE_COLOR, width_mm=0.6,
             outline_style="dash")
-    _labels(root, "probable_id", placement=2, size_pt=7.0, color="#7a5c00", priority=2, obstacle=False,
+    _labels(root, "probable_id", placement=8, size_pt=7.0, color="#7a5c00", priority=2, obstacle=False,
             z_index=1)
     return _finish(root, geom)
 
