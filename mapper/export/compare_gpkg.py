@@ -78,7 +78,7 @@ def difference_raster(cmp: Comparison, ecrs: ExportCRS) -> tuple[np.ndarray, obj
     """The difference grid as a north-up float32 raster in the export CRS.
 
     A local site writes the common grid as it is; a georeferenced one is resampled bilinearly
-    onto a north-up grid of the same ground cell (:func:`~mapper.export.raster.resample_north_up`),
+    onto a north-up grid of half the ground cell (:func:`~mapper.export.raster.resample_north_up`),
     NaN outside the common region.
 
     Returns

@@ -2,8 +2,9 @@
 
 Band 1 is the estimate, band 2 its standard deviation, in V/m. A local site's grid is already
 axis-aligned in its engineering CRS and is written as it is. A georeferenced site's grid is
-rotated against the projected CRS, so it is resampled onto a north-up grid of about the same
-ground cell (bilinear between the four field-grid nodes around each new cell centre), with no
+rotated against the projected CRS, so it is resampled onto a north-up grid of half its ground
+cell (:data:`RESAMPLE_FACTOR`; bilinear between the four field-grid nodes around each new cell
+centre), with no
 rotation terms in the geotransform: desktop GIS and plain exports (XYZ, ASCII grid) then read it
 without warping. Cells whose centre lies outside the site outline are nodata.
 
@@ -32,6 +33,10 @@ from mapper.field.model import FieldGrid
 
 #: Band names, in order.
 BAND_NAMES = ("estimate_v_per_m", "std_v_per_m")
+#: A rotated field grid is resampled onto north-up cells this many times smaller than its own:
+#: bilinear resampling flattens peaks between nodes, and on the sample hall (1 m cells) the
+#: largest |E| of the raster falls 11 % short of the grid's at the same cell, 2 % at half of it.
+RESAMPLE_FACTOR = 2
 #: Rasters wider or taller than this (cells) are tiled and get overviews.
 TILE_ABOVE_PX = 1024
 #: Tile edge of a tiled GeoTIFF, cells.
@@ -122,7 +127,7 @@ def resample_north_up(x: np.ndarray, y: np.ndarray, arrays: list[np.ndarray], ec
     transform : affine.Affine
         Pixel corner -> CRS, no rotation terms.
     cell : float
-        Cell edge, CRS metres.
+        Cell edge, CRS metres (the grid's cell over :data:`RESAMPLE_FACTOR` when resampled).
     resampled : bool
         False for a local site (the arrays as they are, flipped north-up).
     """
@@ -131,7 +136,7 @@ def resample_north_up(x: np.ndarray, y: np.ndarray, arrays: list[np.ndarray], ec
         transform = Affine(c, 0.0, float(x[0]) - 0.5 * c, 0.0, -c, float(y[-1]) + 0.5 * c)
         return [np.asarray(a, dtype=float)[::-1].astype(np.float32) for a in arrays], transform, c, False
     g = ecrs.georef
-    cell = c * g.scale
+    cell = c * g.scale / RESAMPLE_FACTOR
     ox, oy = shapely.get_coordinates(shapely.boundary(outline)).T
     e, n = g.forward(ox, oy)
     west = math.floor(float(np.min(e)) / cell) * cell
@@ -242,4 +247,4 @@ def write_geotiff(grid: FieldGrid, ecrs: ExportCRS, path: str | Path, *, outline
 
 
 __all__ = ["BAND_NAMES", "NorthUp", "bilinear", "fill_nearest", "north_up", "overview_factors", "resample_north_up",
-           "write_geotiff"]
+           "RESAMPLE_FACTOR", "write_geotiff"]

@@ -12,6 +12,7 @@ from scipy.interpolate import RegularGridInterpolator
 
 from mapper.export.bundle import export_products
 from mapper.export.pipeline import survey_products
+from mapper.export.raster import RESAMPLE_FACTOR
 from mapper.site.georef import LOCAL_CRS_WKT
 from mapper.survey.store import Survey
 from tests.export.helpers import ROTATION_DEG, UTM, add_grid_readings, known_forward
@@ -62,10 +63,11 @@ def test_raster_is_north_up_and_agrees_with_the_field_model_at_the_readings(rota
         assert src.count == 2 and src.dtypes == ("float32", "float32")
         assert CRS.from_user_input(src.crs.to_wkt()) == CRS.from_user_input(UTM)
         t = src.transform
-        # North-up: no rotation terms (GDAL data model: GT(2) = GT(4) = 0), square cells of the
-        # field's ground cell (the known transform has scale 1), north at row 0.
+        # North-up: no rotation terms (GDAL data model: GT(2) = GT(4) = 0), square cells of half
+        # the field's ground cell (the known transform has scale 1), north at row 0.
         assert t.b == 0.0 and t.d == 0.0
-        assert t.a == pytest.approx(grid.cell_m, rel=1e-6) and t.e == pytest.approx(-grid.cell_m, rel=1e-6)
+        cell = grid.cell_m / RESAMPLE_FACTOR
+        assert t.a == pytest.approx(cell, rel=1e-6) and t.e == pytest.approx(-cell, rel=1e-6)
         est, std = src.read(1), src.read(2)
         assert src.nodatavals[0] is not None and np.isnan(src.nodatavals[0])
     # Nodata exactly outside the outline: a cell centre mapped back into site metres by the
@@ -84,7 +86,7 @@ def test_raster_is_north_up_and_agrees_with_the_field_model_at_the_readings(rota
     # Values at the readings. The field model between its nodes is the bilinear interpolant of
     # its grid (scipy's RegularGridInterpolator, method "linear", is the reference). The GeoTIFF
     # cell holding a reading was resampled bilinearly at that cell's centre q, at most
-    # cell * sqrt(2) / 2 from the reading p. A bilinear interpolant is Lipschitz with constant
+    # (raster cell) * sqrt(2) / 2 from the reading p. A bilinear interpolant is Lipschitz with constant
     # at most sqrt(2) * G, G the largest node-to-node slope of the cells it crosses, so the stated
     # resampling error bound is |tif(p) - model(p)| <= sqrt(2) * G * |q - p| (+ float32 rounding,
     # 1e-6 relative). G is taken over the 5 x 5 nodes around the reading.
@@ -102,7 +104,7 @@ def test_raster_is_north_up_and_agrees_with_the_field_model_at_the_readings(rota
         value = float(est[row, col])
         qe, qn = t @ (col + 0.5, row + 0.5)
         dist = float(np.hypot(qe - pe, qn - pn))
-        assert dist <= grid.cell_m * np.sqrt(2) / 2 + 1e-9
+        assert dist <= cell * np.sqrt(2) / 2 + 1e-9
         i, j = int(np.searchsorted(grid.x, x)), int(np.searchsorted(grid.y, y))
         win = grid.estimate[max(j - 3, 0):j + 3, max(i - 3, 0):i + 3]
         slope = np.nanmax([np.nanmax(np.abs(np.diff(win, axis=0)), initial=0.0),
