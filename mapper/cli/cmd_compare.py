@@ -87,6 +87,7 @@ def run(args) -> int:
         write_comparison_gpkg,
     )
     from mapper.export.compare_report import write_comparison_report
+    from mapper.export.geojson import crs_statement
 
     with working("compare") as step:
         step("writing the GeoPackage")
@@ -102,6 +103,7 @@ def run(args) -> int:
                     "out": str(out),
                     "pdf": str(printed.pdf),
                     "png": None if printed.png is None else str(printed.png),
+                    "crs": crs_statement(before.site),
                     "summary": cmp.summary.to_dict(),
                     "changes": [c.to_dict() for c in cmp.changes],
                     "warnings": messages,

@@ -13,7 +13,7 @@ import json
 import numpy as np
 
 from mapper.cli.commands import summary
-from mapper.cli.common import fmt, say, table, threshold_arg, warn
+from mapper.cli.common import check_output, fmt, say, table, threshold_arg, warn
 from mapper.features.hotspots import MEASURED_NOTE
 from mapper.features.zone_results import zone_sentence
 from mapper.presentation import hotspot_table
@@ -36,15 +36,29 @@ def register(sub) -> None:
         "(default: the survey's own)",
     )
     p.add_argument("--json", action="store_true", help="print JSON instead of text")
+    p.add_argument("--geojson", metavar="FILE", default=None,
+                   help="also write hotspots, advice and sources as GeoJSON (longitude/latitude, "
+                   "EPSG:4326; georeferenced sites only)")
     p.set_defaults(func=run)
 
 
 def run(args) -> int:
+    if args.geojson is not None:
+        check_output(args.geojson, ".geojson")
     products = survey_file_products(args.survey, args.threshold).require_field()
+    written = None
+    if args.geojson is not None:
+        from mapper.export.geojson import write_geojson
+
+        written = write_geojson(products, args.geojson)
     if args.json:
+        from mapper.export.geojson import crs_statement
+
         data = {
             "survey": products.name,
             "file": products.source,
+            "crs": crs_statement(products.site),
+            "geojson": None if written is None else str(written),
             "threshold_source": products.threshold_source,
             "field_model": products.field_note,
             "method": products.grid.method,
@@ -57,6 +71,8 @@ def run(args) -> int:
         warn(message)
     for line in report_lines(products):
         say(line)
+    if written is not None:
+        say(f"wrote {written} (hotspots, advice and sources; longitude/latitude, EPSG:4326)")
     return 0
 
 

@@ -20,7 +20,7 @@ _WHERE = {
     "write_geopackage": "gpkg",
     "MetaRow": "metadata",
     "metadata_rows": "metadata",
-    "grid_transform": "raster",
+    "north_up": "raster",
     "write_geotiff": "raster",
     "ReportResult": "report",
     "write_report": "report",

@@ -5,6 +5,7 @@ from __future__ import annotations
 from dataclasses import dataclass
 from pathlib import Path
 
+from mapper.atomic_file import atomic_path
 from mapper.export.csv_out import write_readings_csv
 from mapper.export.gpkg import GpkgResult, write_geopackage
 from mapper.export.raster import write_geotiff
@@ -42,8 +43,9 @@ class ExportResult:
         if self.tif is not None:
             g = products.grid
             out.append(
-                f"wrote {self.tif}: {len(g.x)} x {len(g.y)} cells of {g.cell_m:g} m, bands estimate and "
-                f"standard deviation in V/m, nodata outside the site"
+                f"wrote {self.tif}: north-up, cells of {g.cell_m:g} m, bands estimate and "
+                f"standard deviation in V/m, nodata outside the site; style {self.tif.with_suffix('.qml').name} "
+                f"and {self.tif.with_suffix('.sld').name} beside it"
             )
         else:
             out.append(f"no field layers and no GeoTIFF: {products.no_field_reason}")
@@ -58,6 +60,21 @@ class ExportResult:
                 f"{plural(len(f.violations), 'keep-away violation')}, {plural(len(f.advice), 'suggested reading')}"
             )
         return out
+
+
+def write_raster_styles(products: Products, tif_path: Path) -> tuple[Path, Path]:
+    """The GeoTIFF's style beside it: ``OUT.qml`` (read by the desktop GIS on opening) and ``OUT.sld``."""
+    from mapper.export.styles import LayerStyle, field_raster_qml
+
+    style = LayerStyle(tif_path.stem, field_raster_qml(products.threshold_v_per_m, products.display_unit),
+                       "field estimate (band 1) on the action-level scale", raster=True)
+    out = []
+    for suffix, text in ((".qml", style.qml), (".sld", style.sld)):
+        target = tif_path.with_suffix(suffix)
+        with atomic_path(target) as tmp:
+            tmp.write_text(text, encoding="utf-8")
+        out.append(target)
+    return out[0], out[1]
 
 
 def export_products(products: Products, gpkg_path: str | Path, *, csv_path: str | Path | None = None) -> ExportResult:
@@ -83,15 +100,18 @@ def export_products(products: Products, gpkg_path: str | Path, *, csv_path: str 
     removed = False
     if products.grid is not None:
         tif = write_geotiff(
-            products.grid, products.crs, tif_path,
+            products.grid, products.crs, tif_path, outline=products.site.outline,
             tags={"threshold_v_per_m": f"{products.threshold_v_per_m:.10g}", "site": products.name,
                   "sign_convention": "physics (positive: field pointing up)"},
         )
+        write_raster_styles(products, tif_path)
     elif tif_path.exists():
         tif_path.unlink()
         removed = True
+        for side in (tif_path.with_suffix(".qml"), tif_path.with_suffix(".sld")):
+            side.unlink(missing_ok=True)
     csv = write_readings_csv(products, csv_path) if csv_path is not None else None
     return ExportResult(gpkg, tif, csv, removed)
 
 
-__all__ = ["ExportResult", "export_products"]
+__all__ = ["ExportResult", "export_products", "write_raster_styles"]

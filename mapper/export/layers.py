@@ -57,6 +57,14 @@ def _finite(value: float | None) -> float | None:
     return None if value is None or not math.isfinite(value) else float(value)
 
 
+def _utc(value) -> pd.Timestamp | None:
+    """A time (datetime or ISO text) as a UTC timestamp, or None."""
+    if value is None or value == "":
+        return None
+    t = pd.Timestamp(value)
+    return t.tz_localize("UTC") if t.tzinfo is None else t.tz_convert("UTC")
+
+
 READING_COLUMNS = (
     "reading_id", "point", "kind", "value_v_per_m", "raw_v_per_m", "value_display", "display_unit",
     "entered_value", "entered_unit", "time_utc", "height_m", "meter_id", "note", "flags",
@@ -94,10 +102,10 @@ def reading_records(products: Products) -> list[dict]:
             "x_site_m": r.x,
             "y_site_m": r.y,
             "source": extra.get("source"),
-            "recorded_utc": extra.get("recorded_utc"),
+            "recorded_utc": _utc(extra.get("recorded_utc")),
             "rh_percent": cond.rh_percent if cond else None,
             "temperature_c": cond.temperature_c if cond else None,
-            "conditions_utc": cond.time.isoformat() if cond else None,
+            "conditions_utc": _utc(cond.time) if cond else None,
             "conditions_note": cond.note if cond else None,
         })
     return out
@@ -108,8 +116,8 @@ def readings_layer(products: Products) -> Layer:
     records = reading_records(products)
     geoms = [Point(c.reading.x, c.reading.y) for c in products.readings]
     frame = _frame(records, geoms, products, READING_COLUMNS)
-    if frame.empty:
-        frame["time_utc"] = pd.Series(dtype="datetime64[ms, UTC]")
+    for col in ("time_utc", "recorded_utc", "conditions_utc"):
+        frame[col] = pd.to_datetime(frame[col], utc=True, format="ISO8601")
     for col in ("height_m", "rh_percent", "temperature_c"):
         frame[col] = pd.to_numeric(frame[col], errors="coerce").astype(float)
     return Layer("readings", frame, "Point", "field readings: corrected value_v_per_m, raw value, entry, conditions")
@@ -137,13 +145,32 @@ def zones_layer(products: Products) -> Layer:
     return Layer("zones", frame, "MultiPolygon", "zones (e.g. ESD protected areas) with their limits")
 
 
+#: Columns of the three asset layers (the same in each).
+ASSET_COLUMNS = ("name", "kind", "sensitive", "walkable")
+#: Asset layer of each geometry family: one geometry type per layer, so one style applies to all.
+ASSET_LAYERS = (("assets", "MultiPolygon", ("Polygon", "MultiPolygon"), "asset polygons: workstations, racks ..."),
+                ("asset_lines", "MultiLineString", ("LineString", "MultiLineString", "LinearRing"),
+                 "line assets: conveyors, rails ..."),
+                ("asset_points", "MultiPoint", ("Point", "MultiPoint"), "point assets: tools, sensors ..."))
+
+
+def asset_layers(products: Products) -> list[Layer]:
+    """Assets split by geometry type: ``assets`` (polygons), ``asset_lines``, ``asset_points``."""
+    out = []
+    for name, gtype, kinds, description in ASSET_LAYERS:
+        assets = [a for a in products.site.assets if a.geometry.geom_type in kinds and not a.geometry.is_empty]
+        records = [{"name": a.name, "kind": a.kind, "sensitive": bool(a.sensitive), "walkable": bool(a.walkable)}
+                   for a in assets]
+        frame = _frame(records, [a.geometry for a in assets], products, ASSET_COLUMNS)
+        if frame.empty:
+            frame = frame.astype({"sensitive": bool, "walkable": bool, "name": object, "kind": object})
+        out.append(Layer(name, frame, gtype, description))
+    return out
+
+
 def assets_layer(products: Products) -> Layer:
-    """Assets (lines and polygons mixed)."""
-    assets = products.site.assets
-    records = [{"name": a.name, "kind": a.kind, "sensitive": bool(a.sensitive), "walkable": bool(a.walkable)}
-               for a in assets]
-    frame = _frame(records, [a.geometry for a in assets], products, ("name", "kind", "sensitive", "walkable"))
-    return Layer("assets", frame, "Unknown", "assets: conveyors, workstations, racks ...")
+    """Asset polygons (the ``assets`` layer)."""
+    return asset_layers(products)[0]
 
 
 def contours_layer(products: Products) -> Layer:
@@ -187,21 +214,26 @@ HOTSPOT_COLUMNS = (
 )
 
 
-def hotspots_layer(products: Products) -> Layer:
-    """Hotspots at the survey threshold, then those at zone limits (``zone`` set)."""
-    f = products.findings
-    unit = products.display_unit
-    spots = (*f.hotspots, *f.zone_hotspots)
-    records = [{
+def hotspot_record(h, unit: str) -> dict:
+    """One hotspot's attributes (:data:`HOTSPOT_COLUMNS`); SI with a display-unit peak."""
+    return {
         "hotspot_id": h.id, "polarity": h.polarity, "status": h.status, "area_m2": h.area_m2,
         "threshold_v_per_m": h.threshold_v_per_m, "peak_v_per_m": h.peak_v_per_m,
         "peak_display": from_si(h.peak_v_per_m, unit), "display_unit": unit,
         "peak_x_site_m": h.peak_x, "peak_y_site_m": h.peak_y, "mean_v_per_m": h.mean_v_per_m,
         "n_readings": len(h.reading_ids), "reading_ids": ",".join(map(str, h.reading_ids)),
-        "max_reading_v_per_m": h.max_reading_v_per_m, "p_exceed_max": h.p_exceed_max,
-        "nearest_asset": h.nearest_asset, "nearest_asset_m": h.nearest_asset_m,
+        "max_reading_v_per_m": _finite(h.max_reading_v_per_m), "p_exceed_max": _finite(h.p_exceed_max),
+        "nearest_asset": h.nearest_asset, "nearest_asset_m": _finite(h.nearest_asset_m),
         "zones": ",".join(h.zones), "zone": h.zone,
-    } for h in spots]
+    }
+
+
+def hotspots_layer(products: Products) -> Layer:
+    """Hotspots at the survey threshold, then those at zone limits (``zone`` set)."""
+    f = products.findings
+    unit = products.display_unit
+    spots = (*f.hotspots, *f.zone_hotspots)
+    records = [hotspot_record(h, unit) for h in spots]
     frame = _frame(records, [h.geometry for h in spots], products, HOTSPOT_COLUMNS)
     for col in ("max_reading_v_per_m", "p_exceed_max", "nearest_asset_m"):
         frame[col] = frame[col].astype(float)
@@ -269,7 +301,7 @@ def sources_layer(products: Products) -> Layer:
 
 def all_layers(products: Products) -> list[Layer]:
     """Every layer the products allow: the base layers always, field layers with a field model."""
-    layers = [readings_layer(products), site_layer(products), zones_layer(products), assets_layer(products)]
+    layers = [readings_layer(products), site_layer(products), zones_layer(products), *asset_layers(products)]
     if products.has_field:
         layers += [contours_layer(products), bands_layer(products), hotspots_layer(products),
                    probable_layer(products), violations_layer(products), advice_layer(products)]
@@ -283,4 +315,5 @@ FIELD_LAYERS = ("contours", "bands", "hotspots", "probable_exceedance", "violati
 #: Layers only written with a physical field model.
 PHYSICS_LAYERS = ("sources",)
 
-__all__ = ["FIELD_LAYERS", "HOTSPOT_COLUMNS", "READING_COLUMNS", "Layer", "all_layers", "reading_records"]
+__all__ = ["ASSET_COLUMNS", "ASSET_LAYERS", "FIELD_LAYERS", "HOTSPOT_COLUMNS", "READING_COLUMNS", "Layer",
+           "all_layers", "asset_layers", "hotspot_record", "reading_records"]

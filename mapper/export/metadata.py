@@ -176,4 +176,72 @@ def _drift_facts(report) -> list[tuple[str, str, str]]:
     ]
 
 
-__all__ = ["METADATA_TABLE", "MetaRow", "metadata_rows"]
+
+
+
+#: GDAL's metadata domain document (read back as the dataset's metadata by GDAL-based tools).
+GDAL_MD_URI = "http://gdal.org"
+_METADATA_DDL = (
+    "CREATE TABLE IF NOT EXISTS gpkg_metadata (id INTEGER CONSTRAINT m_pk PRIMARY KEY ASC NOT NULL, "
+    "md_scope TEXT NOT NULL DEFAULT 'dataset', md_standard_uri TEXT NOT NULL, "
+    "mime_type TEXT NOT NULL DEFAULT 'text/xml', metadata TEXT NOT NULL DEFAULT '')",
+    "CREATE TABLE IF NOT EXISTS gpkg_metadata_reference (reference_scope TEXT NOT NULL, table_name TEXT, "
+    "column_name TEXT, row_id_value INTEGER, timestamp DATETIME NOT NULL DEFAULT "
+    "(strftime('%Y-%m-%dT%H:%M:%fZ','now')), md_file_id INTEGER NOT NULL, md_parent_id INTEGER, "
+    "CONSTRAINT crmr_mfi_fk FOREIGN KEY (md_file_id) REFERENCES gpkg_metadata(id), "
+    "CONSTRAINT crmr_mpi_fk FOREIGN KEY (md_parent_id) REFERENCES gpkg_metadata(id))",
+)
+
+
+def gdal_metadata_xml(items: dict[str, str]) -> str:
+    """A ``GDALMultiDomainMetadata`` document of key/value items (default domain)."""
+    import xml.etree.ElementTree as ET
+
+    root = ET.Element("GDALMultiDomainMetadata")
+    md = ET.SubElement(root, "Metadata")
+    for key, value in items.items():
+        ET.SubElement(md, "MDI", {"key": key}).text = value
+    return ET.tostring(root, encoding="unicode")
+
+
+def metadata_items(rows: list[MetaRow]) -> dict[str, str]:
+    """Metadata rows as ``SECTION_KEY -> "value unit"`` items (keys upper case, no spaces)."""
+    out: dict[str, str] = {}
+    for r in rows:
+        key = f"{r.section}_{r.key}".upper().replace(" ", "_").replace("(", "").replace(")", "")
+        out[key] = f"{r.value} {r.unit}".strip() if r.unit else r.value
+    return out
+
+
+def write_gdal_metadata(conn, rows: list[MetaRow], now_utc: str) -> None:
+    """Store the metadata also in the GeoPackage metadata extension, as GDAL writes dataset metadata.
+
+    One ``gpkg_metadata`` row (``md_standard_uri`` ``http://gdal.org``, a
+    ``GDALMultiDomainMetadata`` XML document) referenced with scope ``geopackage`` (the whole
+    file), which GDAL and the tools built on it read as the dataset's metadata.
+
+    Parameters
+    ----------
+    conn : sqlite3.Connection
+        Open GeoPackage (the caller commits).
+    rows : list of MetaRow
+        What :func:`metadata_rows` returned.
+    now_utc : str
+        Time stamp of the reference, ``YYYY-MM-DDTHH:MM:SS.sssZ``.
+    """
+    from mapper.export.columns import register_extension
+
+    for ddl in _METADATA_DDL:
+        conn.execute(ddl)
+    definition = "http://www.geopackage.org/spec120/#extension_metadata"
+    for table in ("gpkg_metadata", "gpkg_metadata_reference"):
+        register_extension(conn, table, "gpkg_metadata", definition)
+    cur = conn.execute(
+        "INSERT INTO gpkg_metadata (md_scope, md_standard_uri, mime_type, metadata) VALUES ('dataset', ?, 'text/xml', ?)",
+        (GDAL_MD_URI, gdal_metadata_xml(metadata_items(rows))))
+    conn.execute(
+        "INSERT INTO gpkg_metadata_reference (reference_scope, table_name, column_name, row_id_value, timestamp, "
+        "md_file_id, md_parent_id) VALUES ('geopackage', NULL, NULL, NULL, ?, ?, NULL)", (now_utc, cur.lastrowid))
+
+__all__ = ["GDAL_MD_URI", "METADATA_TABLE", "MetaRow", "gdal_metadata_xml", "metadata_items", "metadata_rows",
+           "write_gdal_metadata"]

@@ -101,7 +101,14 @@ def _doc(geometry_type: int) -> tuple[ET.Element, ET.Element]:
 
 
 def _labels(root: ET.Element, field_name: str, *, placement: int, size_pt: float = 8.0,
-            color: str = "#000000", bold: bool = False) -> None:
+            color: str = "#000000", bold: bool = False, priority: int = 5, obstacle: bool = True,
+            always: bool = False, z_index: float = 0.0) -> None:
+    """Simple labelling on one field.
+
+    ``priority`` 0-10 (10 placed first), ``obstacle`` whether the layer's features keep other
+    labels off them, ``always`` draws the label even where it collides, ``z_index`` stacks
+    labels of several layers (higher on top).
+    """
     lab = ET.SubElement(root, "labeling", {"type": "simple"})
     settings = ET.SubElement(lab, "settings", {"calloutType": "simple"})
     ET.SubElement(settings, "text-style", {
@@ -113,8 +120,15 @@ def _labels(root: ET.Element, field_name: str, *, placement: int, size_pt: float
         "bufferDraw": "1", "bufferSize": "0.8", "bufferSizeUnits": "MM", "bufferColor": "255,255,255,255",
         "bufferOpacity": "0.85",
     })
-    ET.SubElement(settings, "placement", {"placement": str(placement), "repeatDistance": "0"})
-    ET.SubElement(settings, "rendering", {"drawLabels": "1", "obstacle": "1", "scaleVisibility": "0"})
+    ET.SubElement(settings, "placement", {"placement": str(placement), "repeatDistance": "0",
+                                          "priority": str(priority), "dist": "1", "distUnits": "MM",
+                                          "placementFlags": "10", "centroidInside": "1"})
+    ET.SubElement(settings, "rendering", {
+        "drawLabels": "1", "obstacle": "1" if obstacle else "0", "obstacleFactor": "1", "obstacleType": "1",
+        "scaleVisibility": "0", "displayAll": "1" if always else "0", "zIndex": f"{z_index:g}",
+        "upsidedownLabels": "0", "labelPerPart": "0", "mergeLines": "0", "limitNumLabels": "0",
+        "unplacedVisibility": "1" if always else "0",
+    })
     root.set("labelsEnabled", "1")
 
 
@@ -193,7 +207,7 @@ def hotspots_qml() -> str:
     cats = [(pol, pol, {"color": HOTSPOT_COLORS[pol], "style": "no", "outline": HOTSPOT_COLORS[pol],
                         "width_mm": 0.9}) for pol in ("positive", "negative")]
     _categorized(root, "polarity", cats, "fill")
-    _labels(root, "hotspot_id", placement=1, size_pt=10.0, bold=True)
+    _labels(root, "hotspot_id", placement=1, size_pt=10.0, bold=True, priority=10, always=True, z_index=10)
     return _finish(root, geom)
 
 
@@ -208,12 +222,117 @@ def outline_qml(color: str, *, width_mm: float = 0.6, dashed: bool = False, labe
     return _finish(root, geom)
 
 
+def probable_qml() -> str:
+    """Probable-exceedance regions dashed amber, labelled just outside their edge.
+
+    Their labels rank below hotspot labels and never push them away: the regions are no
+    obstacle for other labels, and the label is placed outside the region (the desktop GIS's
+    "outside polygons" placement), not over the centre where a hotspot id usually is.
+    """
+    root, geom = _doc(2)
+    _single(root, "fill", color=PROBABLE_COLOR, style="no", outline=PROBABLE_COLOR, width_mm=0.6,
+            outline_style="dash")
+    _labels(root, "probable_id", placement=8, size_pt=7.0, color="#7a5c00", priority=2, obstacle=False,
+            z_index=1)
+    return _finish(root, geom)
+
+
 def assets_qml() -> str:
-    """Assets grey (lines and polygons), labelled with their names."""
+    """Asset polygons grey, labelled with their names."""
     root, geom = _doc(2)
     _single(root, "fill", color=ASSET_COLOR, alpha=110, outline=ASSET_COLOR, width_mm=0.5)
-    _labels(root, "name", placement=1, size_pt=7.0, color="#333333")
+    _labels(root, "name", placement=1, size_pt=7.0, color="#333333", priority=3, obstacle=False)
     return _finish(root, geom)
+
+
+def asset_lines_qml() -> str:
+    """Line assets (conveyors, rails) as thick grey lines, labelled along the line."""
+    root, geom = _doc(1)
+    _single(root, "line", color=ASSET_COLOR, width_mm=1.2)
+    _labels(root, "name", placement=2, size_pt=7.0, color="#333333", priority=3, obstacle=False)
+    return _finish(root, geom)
+
+
+def asset_points_qml() -> str:
+    """Point assets as grey squares-ish dots, labelled beside them."""
+    root, geom = _doc(0)
+    _single(root, "marker", color=ASSET_COLOR, outline="#333333", width_mm=0.3, size_mm=2.6)
+    _labels(root, "name", placement=0, size_pt=7.0, color="#333333", priority=3, obstacle=False)
+    return _finish(root, geom)
+
+
+def _raster_doc(items: Sequence[tuple[float, str, str]], ramp_type: str, lo: float, hi: float) -> str:
+    root = ET.Element("qgis", {"version": "3.22.0", "styleCategories": "AllStyleCategories"})
+    pipe = ET.SubElement(root, "pipe")
+    provider = ET.SubElement(pipe, "provider")
+    ET.SubElement(provider, "resampling", {"enabled": "false", "zoomedInResamplingMethod": "nearestNeighbour",
+                                           "zoomedOutResamplingMethod": "nearestNeighbour", "maxOversampling": "2"})
+    r = ET.SubElement(pipe, "rasterrenderer", {
+        "type": "singlebandpseudocolor", "band": "1", "opacity": "1", "alphaBand": "-1", "nodataColor": "",
+        "classificationMin": f"{lo:.10g}", "classificationMax": f"{hi:.10g}",
+    })
+    ET.SubElement(r, "rasterTransparency")
+    mm = ET.SubElement(r, "minMaxOrigin")
+    for tag, text in (("limits", "None"), ("extent", "WholeRaster"), ("statAccuracy", "Estimated"),
+                      ("cumulativeCutLower", "0.02"), ("cumulativeCutUpper", "0.98"), ("stdDevFactor", "2")):
+        ET.SubElement(mm, tag).text = text
+    shader = ET.SubElement(r, "rastershader")
+    crs = ET.SubElement(shader, "colorrampshader", {
+        "colorRampType": ramp_type, "classificationMode": "3", "clip": "0",
+        "minimumValue": f"{lo:.10g}", "maximumValue": f"{hi:.10g}", "labelPrecision": "0",
+    })
+    for value, colour, label in items:
+        ET.SubElement(crs, "item", {"alpha": "255", "value": "inf" if math.isinf(value) else repr(float(value)),
+                                    "label": label, "color": colour})
+    ET.SubElement(pipe, "brightnesscontrast", {"brightness": "0", "contrast": "0", "gamma": "1"})
+    ET.SubElement(pipe, "huesaturation", {"saturation": "0", "grayscaleMode": "0", "colorizeOn": "0",
+                                          "invertColors": "0"})
+    ET.SubElement(pipe, "rasterresampler", {"maxOversampling": "2"})
+    ET.SubElement(root, "blendMode").text = "0"
+    ET.indent(root)
+    return "<!DOCTYPE qgis PUBLIC 'http://mrcc.com/qgis.dtd' 'SYSTEM'>\n" + ET.tostring(root, encoding="unicode")
+
+
+def field_classes(threshold_v_per_m: float, unit: str) -> list[tuple[float, str, str]]:
+    """The action-level scale as discrete classes: ``(upper bound V/m, colour, label)``, increasing.
+
+    A value gets the colour of the first class whose upper bound is not below it (the desktop
+    GIS's discrete colour ramp). The scale puts a value exactly on a positive edge into the band
+    above, so positive upper bounds sit a relative 1e-9 below their edge.
+    """
+    edges = cs.edges_v_per_m(threshold_v_per_m)
+    labels = [label for _, label in reversed(cs.legend_rows(threshold_v_per_m, unit))]
+    n = len(cs.POSITIVE)
+    out = []
+    for i, label in enumerate(labels):
+        band = i - n
+        if i == len(labels) - 1:
+            upper = math.inf
+        else:
+            upper = edges[i] if edges[i] < 0 else edges[i] * (1 - 1e-9)
+        out.append((upper, cs.band_hex(band), label))
+    return out
+
+
+def field_raster_qml(threshold_v_per_m: float, unit: str) -> str:
+    """Band 1 (the estimate) as a single-band pseudocolour on the action-level scale (discrete)."""
+    t = float(threshold_v_per_m)
+    edges = cs.edges_v_per_m(t)
+    return _raster_doc(field_classes(t, unit), "DISCRETE", edges[0] * 1.25, edges[-1] * 1.25)
+
+
+#: Colours of the standard-deviation ramp (ColorBrewer Purples, from memory).
+STD_COLORS = ("#fcfbfd", "#dadaeb", "#9e9ac8", "#6a51a3", "#3f007d")
+
+
+def std_raster_qml(threshold_v_per_m: float, unit: str) -> str:
+    """The standard deviation as a continuous purple ramp from 0 to the action level."""
+    from mapper.units import format_field
+
+    t = float(threshold_v_per_m)
+    stops = [0.0, 0.1 * t, 0.25 * t, 0.5 * t, t]
+    items = [(v, c, format_field(v, unit)) for v, c in zip(stops, STD_COLORS, strict=True)]
+    return _raster_doc(items, "INTERPOLATED", 0.0, t)
 
 
 def advice_qml() -> str:
@@ -241,6 +360,14 @@ class LayerStyle:
     table: str
     qml: str
     description: str
+    raster: bool = False
+
+    @property
+    def sld(self) -> str:
+        """The same style as an OGC SLD 1.0.0 document."""
+        from mapper.export.sld import sld_from_qml
+
+        return sld_from_qml(self.qml, self.table, self.description)
 
 
 #: The desktop-GIS ``layer_styles`` table.
@@ -263,7 +390,7 @@ def write_layer_styles(conn: sqlite3.Connection, styles: Sequence[LayerStyle]) -
         One per styled layer; each becomes that layer's default style.
     """
     conn.execute(LAYER_STYLES_DDL)
-    now = to_utc_text(utc_now()).replace("+00:00", "Z")
+    now = utc_stamp()
     conn.execute(
         "INSERT INTO gpkg_contents (table_name, data_type, identifier, description, last_change) "
         "VALUES ('layer_styles', 'attributes', 'layer_styles', 'default styles of the layers', ?)",
@@ -273,16 +400,29 @@ def write_layer_styles(conn: sqlite3.Connection, styles: Sequence[LayerStyle]) -
     conn.executemany(
         "INSERT INTO layer_styles (f_table_catalog, f_table_schema, f_table_name, f_geometry_column, "
         "styleName, styleQML, styleSLD, useAsDefault, description, owner, ui, update_time) "
-        "VALUES ('', '', ?, ?, ?, ?, '', 1, ?, 'mapper', '', ?)",
-        [(s.table, geom_cols.get(s.table, "geom"), s.table, s.qml, s.description, now) for s in styles],
+        "VALUES ('', '', ?, ?, ?, ?, ?, 1, ?, 'mapper', '', ?)",
+        [(s.table, "" if s.raster else geom_cols.get(s.table, "geom"), s.table, s.qml, s.sld, s.description, now)
+         for s in styles],
     )
+
+
+def utc_stamp() -> str:
+    """Now as ``YYYY-MM-DDTHH:MM:SS.ffffffZ`` (the GeoPackage's DATETIME form)."""
+    return to_utc_text(utc_now()).replace("+00:00", "Z")
 
 
 __all__ = [
     "LAYER_STYLES_DDL",
     "LayerStyle",
+    "asset_lines_qml",
+    "asset_points_qml",
     "band_colors",
+    "field_classes",
+    "field_raster_qml",
+    "probable_qml",
+    "std_raster_qml",
     "text_color_on",
+    "utc_stamp",
     "value_color",
     "write_layer_styles",
 ]

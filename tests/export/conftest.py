@@ -7,7 +7,7 @@ import pytest
 from mapper.export.bundle import export_products
 from mapper.survey.store import Survey
 from mapper.workflow import survey_products
-from tests.export.helpers import georef_survey, north_hall_survey
+from tests.export.helpers import georef_survey, moved_bump, north_hall_survey
 
 
 @pytest.fixture(scope="session")
@@ -30,3 +30,20 @@ def rotated(tmp_path_factory):
         products = survey_products(survey)
     result = export_products(products, folder / "rotated.gpkg")
     return {"survey": path, "products": products, "result": result, "folder": folder}
+
+
+@pytest.fixture(scope="session")
+def comparison(tmp_path_factory):
+    """The rotated yard before and after its bump moved, compared into a GeoPackage."""
+    from mapper.export.compare_gpkg import write_comparison_gpkg
+    from mapper.features import compare_fields
+    from mapper.workflow import survey_file_products
+
+    folder = tmp_path_factory.mktemp("comparison")
+    before = survey_file_products(georef_survey(folder, "before")).require_field()
+    after = survey_file_products(georef_survey(folder, "after", moved_bump)).require_field()
+    cmp = compare_fields(before.grid, after.grid, before.site, after.site, before.threshold_v_per_m,
+                         before.readings, after.readings)
+    path = folder / "diff.gpkg"
+    write_comparison_gpkg(path, cmp, before.site, before.display_unit)
+    return {"path": path, "cmp": cmp, "before": before, "after": after}

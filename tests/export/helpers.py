@@ -99,11 +99,17 @@ def add_grid_readings(survey_path: Path, spacing: float, extent: tuple[float, fl
     return len(new)
 
 
-def georef_survey(folder: Path) -> Path:
+def georef_survey(folder: Path, name: str = "rotated", field=bump_field) -> Path:
     """A survey of the rotated yard with a grid of bump-field readings."""
-    site = folder / "rotated.toml"
+    site = folder / f"{name}.toml"
     site.write_text(georef_site_text(), encoding="utf-8")
-    path = folder / "rotated.survey"
+    path = folder / f"{name}.survey"
     create_survey(path, site, spacing_m=2.0, threshold_v_per_m=4000.0).close()
-    add_grid_readings(path, 1.5, (20.0, 12.0))
+    add_grid_readings(path, 1.5, (20.0, 12.0), field)
     return path
+
+
+def moved_bump(x, y):
+    """The bump field after a change: the bump moved to (14, 8) and a negative one added at (4, 9)."""
+    return (bump_field(x, y, x0=14.0, y0=8.0, peak=7000.0)
+            + bump_field(x, y, x0=4.0, y0=9.0, peak=-6000.0, base=150.0))

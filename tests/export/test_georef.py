@@ -8,8 +8,10 @@ import pyogrio
 import pytest
 import rasterio
 from pyproj import CRS
+from scipy.interpolate import RegularGridInterpolator
 
 from mapper.export.bundle import export_products
+from mapper.export.raster import RESAMPLE_FACTOR
 from mapper.site.georef import LOCAL_CRS_WKT
 from mapper.survey.store import Survey
 from mapper.workflow import survey_products
@@ -54,26 +56,88 @@ def test_every_exported_point_within_5_cm(rotated):
         assert row.geometry.distance(gpd.points_from_xy([pe], [pn])[0]) < TOLERANCE_M
 
 
-def test_raster_transform_has_rotation_and_lands_cells(rotated):
+def test_raster_is_north_up_and_agrees_with_the_field_model_at_the_readings(rotated):
     grid = rotated["products"].grid
     tif = rotated["result"].tif
     with rasterio.open(tif) as src:
         assert src.count == 2 and src.dtypes == ("float32", "float32")
         assert CRS.from_user_input(src.crs.to_wkt()) == CRS.from_user_input(UTM)
         t = src.transform
-        assert abs(t.b) > 0.1 and abs(t.d) > 0.1  # rotation terms present for a 37 degree site
+        # North-up: no rotation terms (GDAL data model: GT(2) = GT(4) = 0), square cells of half
+        # the field's ground cell (the known transform has scale 1), north at row 0.
+        assert t.b == 0.0 and t.d == 0.0
+        cell = grid.cell_m / RESAMPLE_FACTOR
+        assert t.a == pytest.approx(cell, rel=1e-6) and t.e == pytest.approx(-cell, rel=1e-6)
         est, std = src.read(1), src.read(2)
-        rows, cols = np.meshgrid(np.arange(src.height), np.arange(src.width), indexing="ij")
-        xs, ys = rasterio.transform.xy(t, rows.ravel(), cols.ravel(), offset="center")
-    ny = len(grid.y)
-    site_x = grid.x[cols.ravel()]
-    site_y = grid.y[ny - 1 - rows.ravel()]
-    e, n = known_forward(site_x, site_y)
-    assert np.hypot(np.asarray(xs) - e, np.asarray(ys) - n).max() < TOLERANCE_M
-    # Values: band 1 is the estimate, band 2 the std, row 0 the largest site y; NaN outside.
-    np.testing.assert_array_equal(np.isnan(est), ~grid.inside[::-1])
-    np.testing.assert_allclose(est[~np.isnan(est)], grid.estimate[::-1][grid.inside[::-1]].astype(np.float32))
-    np.testing.assert_allclose(std[~np.isnan(std)], grid.std[::-1][grid.inside[::-1]].astype(np.float32))
+        assert src.nodatavals[0] is not None and np.isnan(src.nodatavals[0])
+    # Nodata exactly outside the outline: a cell centre mapped back into site metres by the
+    # known transform is finite when inside the 20 m x 12 m rectangle and NaN outside it.
+    rows, cols = np.meshgrid(np.arange(est.shape[0]), np.arange(est.shape[1]), indexing="ij")
+    ce, cn = rasterio.transform.xy(t, rows.ravel(), cols.ravel(), offset="center")
+    theta = np.radians(ROTATION_DEG)
+    de, dn = np.asarray(ce) - known_forward(0, 0)[0], np.asarray(cn) - known_forward(0, 0)[1]
+    sx, sy = np.cos(theta) * de + np.sin(theta) * dn, -np.sin(theta) * de + np.cos(theta) * dn
+    margin = 1e-6
+    inside = (sx > margin) & (sx < 20 - margin) & (sy > margin) & (sy < 12 - margin)
+    outside = (sx < -margin) | (sx > 20 + margin) | (sy < -margin) | (sy > 12 + margin)
+    flat = est.ravel()
+    assert np.isfinite(flat[inside]).all() and np.isnan(flat[outside]).all()
+    assert np.isfinite(std.ravel()[inside]).all()
+    # Values at the readings. The field model between its nodes is the bilinear interpolant of
+    # its grid (scipy's RegularGridInterpolator, method "linear", is the reference). The GeoTIFF
+    # cell holding a reading was resampled bilinearly at that cell's centre q, at most
+    # (raster cell) * sqrt(2) / 2 from the reading p. A bilinear interpolant is Lipschitz with constant
+    # at most sqrt(2) * G, G the largest node-to-node slope of the cells it crosses, so the stated
+    # resampling error bound is |tif(p) - model(p)| <= sqrt(2) * G * |q - p| (+ float32 rounding,
+    # 1e-6 relative). G is taken over the 5 x 5 nodes around the reading.
+    model = RegularGridInterpolator((grid.y, grid.x), grid.estimate, method="linear", bounds_error=False)
+    readings = gpd.read_file(rotated["result"].gpkg.path, layer="readings")
+    e, n = known_forward(readings["x_site_m"], readings["y_site_m"])
+    inv = ~t
+    checked = 0
+    errors = []
+    for x, y, pe, pn in zip(readings["x_site_m"], readings["y_site_m"], e, n, strict=True):
+        ref = float(model([[y, x]])[0])
+        if not np.isfinite(ref):
+            continue  # a node around the reading lies outside the outline
+        col, row = (int(np.floor(v)) for v in inv @ (pe, pn))
+        value = float(est[row, col])
+        qe, qn = t @ (col + 0.5, row + 0.5)
+        dist = float(np.hypot(qe - pe, qn - pn))
+        assert dist <= cell * np.sqrt(2) / 2 + 1e-9
+        i, j = int(np.searchsorted(grid.x, x)), int(np.searchsorted(grid.y, y))
+        win = grid.estimate[max(j - 3, 0):j + 3, max(i - 3, 0):i + 3]
+        slope = np.nanmax([np.nanmax(np.abs(np.diff(win, axis=0)), initial=0.0),
+                           np.nanmax(np.abs(np.diff(win, axis=1)), initial=0.0)]) / grid.cell_m
+        bound = np.sqrt(2) * slope * dist + 1e-6 * abs(ref) + 1e-3
+        assert abs(value - ref) <= bound, (x, y, value, ref, bound)
+        errors.append(abs(value - ref))
+        checked += 1
+    assert checked > 50
+    # In V/m, on the 9 kV/m bump of the test field: the median error stays far below the action level.
+    assert float(np.median(errors)) < 0.05 * rotated["products"].threshold_v_per_m
+
+
+def test_large_raster_is_tiled_with_overviews(tmp_path):
+    # A synthetic 1100 x 40 cell local grid (more than 1024 cells a side): tiled in 256-cell
+    # blocks with overviews 2, 4, 8 (GDAL GeoTIFF driver conventions; common practice, no source).
+    from shapely.geometry import box
+
+    from mapper.export.crs import ExportCRS
+    from mapper.export.raster import write_geotiff
+    from mapper.field.model import FieldGrid
+
+    x = 0.05 + 0.1 * np.arange(1100)
+    y = 0.05 + 0.1 * np.arange(40)
+    est = np.outer(np.ones(40), np.sin(x))
+    grid = FieldGrid(x, y, est, np.abs(est) * 0.1, "idw")
+    path = write_geotiff(grid, ExportCRS(CRS.from_wkt(LOCAL_CRS_WKT)), tmp_path / "big.tif",
+                         outline=box(0, 0, 110, 4))
+    with rasterio.open(path) as src:
+        assert src.width == 1100 and src.height == 40
+        assert src.profile["tiled"] and src.block_shapes[0] == (256, 256)
+        assert src.overviews(1) == [2, 4, 8]
+        np.testing.assert_allclose(src.read(1), est[::-1].astype(np.float32))
 
 
 def test_local_site_exports_in_engineering_crs(tmp_path, box_survey):

@@ -19,8 +19,9 @@ from mapper.export.styles import band_colors
 
 # The sample hall's field model is the physical one (it wins auto's cross-validation), so its
 # export also holds the source inventory.
-SPATIAL = ("readings", "site", "zones", "assets", "contours", "bands", "hotspots", "probable_exceedance",
-           "violations", "advice", "sources")
+SPATIAL = ("readings", "site", "zones", "assets", "asset_lines", "asset_points", "contours", "bands", "hotspots",
+           "probable_exceedance", "violations", "advice", "sources")
+RASTERS = ("field_estimate", "field_std")
 
 
 @pytest.fixture(scope="module")
@@ -30,9 +31,22 @@ def conn(hall):
     c.close()
 
 
-def test_header_application_id_and_version(hall, conn):
+@pytest.fixture(scope="module", params=["survey", "comparison"])
+def package(request):
+    """Each GeoPackage the tool writes: (path, open connection). Both pass the same checks."""
+    if request.param == "survey":
+        path = request.getfixturevalue("hall")["result"].gpkg.path
+    else:
+        path = request.getfixturevalue("comparison")["path"]
+    c = sqlite3.connect(path)
+    yield path, c
+    c.close()
+
+
+def test_header_application_id_and_version(package):
     # OGC 12-128 Req 2: application_id 0x47504B47 ("GPKG"); GeoPackage 1.2+ user_version >= 10200.
-    with open(hall["result"].gpkg.path, "rb") as handle:
+    path, conn = package
+    with open(path, "rb") as handle:
         header = handle.read(100)
     assert header[:16] == b"SQLite format 3\x00"  # OGC 12-128 Req 1
     assert header[68:72] == b"GPKG"
@@ -40,13 +54,15 @@ def test_header_application_id_and_version(hall, conn):
     assert conn.execute("PRAGMA user_version").fetchone()[0] >= 10200
 
 
-def test_integrity_and_foreign_keys(conn):
+def test_integrity_and_foreign_keys(package):
+    _, conn = package
     # OGC 12-128 Req 6 (integrity_check "ok") and Req 7 (foreign_key_check returns no rows).
     assert conn.execute("PRAGMA integrity_check").fetchall() == [("ok",)]
     assert conn.execute("PRAGMA foreign_key_check").fetchall() == []
 
 
-def test_required_spatial_ref_sys_rows(conn):
+def test_required_spatial_ref_sys_rows(package):
+    _, conn = package
     # OGC 12-128 Req 11: rows for srs_id 4326 (EPSG), -1 (undefined Cartesian), 0 (undefined geographic).
     rows = {r[0]: r for r in conn.execute(
         "SELECT srs_id, organization, organization_coordsys_id, definition FROM gpkg_spatial_ref_sys")}
@@ -59,10 +75,12 @@ def test_one_contents_row_per_layer_with_crs(hall, conn):
     rows = conn.execute("SELECT table_name, data_type, srs_id FROM gpkg_contents").fetchall()
     names = [r[0] for r in rows]
     assert len(names) == len(set(names))
-    expected = {*SPATIAL, METADATA_TABLE, "layer_styles"}
+    expected = {*SPATIAL, *RASTERS, METADATA_TABLE, "layer_styles"}
     assert set(names) == expected
     tables = {r[0] for r in conn.execute("SELECT name FROM sqlite_master WHERE type = 'table'")}
     assert expected <= tables
+    # OGC 17-066r1: a float coverage is data_type '2d-gridded-coverage'.
+    assert {r[0] for r in rows if r[1] == "2d-gridded-coverage"} == set(RASTERS)
     features = {r[0]: r[2] for r in rows if r[1] == "features"}
     assert set(features) == set(SPATIAL)
     # Every spatial layer carries the site's projected CRS (the sample names EPSG:32633).
@@ -72,19 +90,40 @@ def test_one_contents_row_per_layer_with_crs(hall, conn):
     assert {r[1] for r in rows if r[0] in (METADATA_TABLE, "layer_styles")} == {"attributes"}
 
 
-def test_geometry_blob_header(conn):
+def test_geometry_blob_header(package):
     # OGC 12-128 Req 19 / clause 2.1.3: blob starts with magic 'GP', version 0, then flags; the
-    # srs_id in the header equals the layer's.
-    for layer in SPATIAL:
-        blob = conn.execute(f'SELECT geom FROM "{layer}" LIMIT 1').fetchone()
-        if blob is None:
-            continue
-        data = blob[0]
-        assert data[:2] == b"GP", layer
-        assert data[2] == 0, layer
-        little = data[3] & 1
-        srs = int.from_bytes(data[4:8], "little" if little else "big", signed=True)
-        assert srs == 32633, layer
+    # srs_id in the header equals the layer's. Flags bit 4 set marks an empty geometry: none is.
+    _, conn = package
+    layers = [r[0] for r in conn.execute("SELECT table_name FROM gpkg_contents WHERE data_type = 'features'")]
+    assert layers
+    for layer in layers:
+        for (data,) in conn.execute(f'SELECT geom FROM "{layer}"'):
+            assert data is not None, layer
+            assert data[:2] == b"GP", layer
+            assert data[2] == 0, layer
+            little = data[3] & 1
+            assert not data[3] & 0b10000, layer  # not empty
+            srs = int.from_bytes(data[4:8], "little" if little else "big", signed=True)
+            assert srs == 32633, layer
+
+
+def test_contents_descriptions_styles_and_crs(package):
+    # OGC 12-128 Req 13/14 (gpkg_contents row per table, srs_id references gpkg_spatial_ref_sys);
+    # every table described, every feature layer and coverage with a stored style.
+    _, conn = package
+    rows = conn.execute("SELECT table_name, data_type, description, srs_id FROM gpkg_contents").fetchall()
+    srs = {r[0] for r in conn.execute("SELECT srs_id FROM gpkg_spatial_ref_sys")}
+    assert all(r[2] for r in rows), [r[0] for r in rows if not r[2]]
+    styled = {r[0] for r in conn.execute("SELECT f_table_name FROM layer_styles")}
+    for name, kind, _, srs_id in rows:
+        if kind in ("features", "2d-gridded-coverage"):
+            assert srs_id in srs, name
+            if name != "sources":
+                assert name in styled, name
+    assert any(r[1] == "2d-gridded-coverage" for r in rows)
+    for (uom, field_name, null) in conn.execute(
+            "SELECT uom, field_name, data_null FROM gpkg_2d_gridded_coverage_ancillary"):
+        assert uom == "V/m" and field_name and null is not None
 
 
 def test_round_trip_readings(hall):
@@ -153,9 +192,10 @@ def test_metadata_table(hall):
 def test_layer_styles(hall, conn):
     rows = conn.execute("SELECT f_table_name, f_geometry_column, styleQML, useAsDefault FROM layer_styles").fetchall()
     styled = {r[0] for r in rows}
-    assert {"bands", "hotspots", "readings", "contours", "site", "zones", "assets"} <= styled
+    assert {"bands", "hotspots", "readings", "contours", "site", "zones", "assets", "asset_lines", "asset_points",
+            "field_estimate", "field_std"} <= styled
     qml = {r[0]: ET.fromstring(r[2].split("\n", 1)[1]) for r in rows}
-    assert all(r[1] == "geom" and r[3] == 1 for r in rows)
+    assert all(r[1] == ("" if r[0] in RASTERS else "geom") and r[3] == 1 for r in rows)
     f = hall["products"].findings
     cats = qml["bands"].find("renderer-v2").find("categories")
     assert len(cats) == len(f.bands)

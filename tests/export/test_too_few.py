@@ -20,14 +20,18 @@ def test_export_without_field(tmp_path, box_survey, capsys):
     out = tmp_path / "few.gpkg"
     stale = tmp_path / "few.tif"
     stale.write_bytes(b"old")
+    for side in (".qml", ".sld"):
+        stale.with_suffix(side).write_text("old style", encoding="utf-8")
     status = run_cli(["export", str(box_survey), str(out), "--csv", str(tmp_path / "few.csv")])
     text = capsys.readouterr().out
     assert status == 0
     assert "no field layers" in text and f"{MIN_FIELD_POSITIONS} or more distinct positions" in text
     layers = {name for name, _ in pyogrio.list_layers(out)}
-    assert layers == {"readings", "site", "zones", "assets", "survey_metadata", "layer_styles"}
+    assert layers == {"readings", "site", "zones", "assets", "asset_lines", "asset_points", "survey_metadata",
+                      "layer_styles"}
     assert len(pyogrio.read_dataframe(out, layer="readings")) == MIN_FIELD_POSITIONS - 1
     assert not stale.exists()  # an older GeoTIFF must not pass for this survey's field
+    assert not stale.with_suffix(".qml").exists() and not stale.with_suffix(".sld").exists()
     conn = sqlite3.connect(out)
     assert conn.execute("PRAGMA integrity_check").fetchone()[0] == "ok"
     reason = conn.execute(
