@@ -15,6 +15,32 @@ from mapper.errors import MapperError
 PART_MARK = ".part-"
 
 
+def output_path(path: str | Path, suffix: str | None = None, option: str | None = None) -> Path:
+    """An output's path, refused in one line before any work when it cannot be written.
+
+    Parameters
+    ----------
+    path : str or Path
+        The output file.
+    suffix : str, optional
+        The ending it must have, e.g. ``".pdf"`` (any letter case).
+    option : str, optional
+        The command-line option that named it (``"--out"``), said in the error.
+
+    Raises
+    ------
+    MapperError
+        When the name has another ending, or its folder does not exist.
+    """
+    out = Path(path)
+    lead = f"{option} " if option else ""
+    if suffix is not None and out.suffix.lower() != suffix:
+        raise MapperError(f"output {out.name!r} should end in {suffix}", where=f"{lead}{out}")
+    if not out.parent.is_dir():
+        raise MapperError("folder does not exist", where=f"{lead}{out.parent}")
+    return out
+
+
 def _temp_name(path: Path) -> Path:
     return path.with_name(f".{path.stem}{PART_MARK}{os.getpid()}{path.suffix}")
 

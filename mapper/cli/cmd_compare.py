@@ -17,7 +17,6 @@ import numpy as np
 from mapper.cli.commands import summary
 from mapper.cli.common import check_output, fmt, say, table, threshold_arg, warn
 from mapper.cli.progress import working
-from mapper.errors import MapperError
 from mapper.features import compare_fields
 from mapper.features.cautions import CAUTIONS
 from mapper.workflow import survey_file_products
@@ -48,16 +47,12 @@ def register(sub) -> None:
 
 
 def run(args) -> int:
-    out = Path(args.out)
-    if out.suffix.lower() != ".gpkg":
-        raise MapperError(f"output {out} must end in .gpkg (a GeoPackage)", where="--out")
-    if not out.parent.is_dir():
-        raise MapperError(f"folder {out.parent} of the output does not exist", where="--out")
+    out = check_output(args.out, ".gpkg", "--out")
     pdf = Path(args.pdf) if args.pdf else out.with_suffix(".pdf")
-    check_output(str(pdf), ".pdf")
+    check_output(str(pdf), ".pdf", "--pdf")
     png = None if args.png is None else (Path(args.png) if args.png else pdf.with_suffix(".png"))
     if png is not None:
-        check_output(str(png), ".png")
+        check_output(str(png), ".png", "--png")
     with working("compare") as step:
         step("before")
         before = survey_file_products(args.before, args.threshold).require_field()

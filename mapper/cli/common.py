@@ -7,6 +7,7 @@ import sys
 from collections.abc import Sequence
 from pathlib import Path
 
+from mapper.atomic_file import output_path
 from mapper.errors import MapperError
 from mapper.units import canonical_unit, format_field, parse_threshold_text
 
@@ -103,11 +104,6 @@ def print_notes(products) -> None:
             warn(note.text)
 
 
-def check_output(path: str, suffix: str) -> Path:
+def check_output(path: str, suffix: str, option: str | None = None) -> Path:
     """Refuse an output name or folder before any work is done."""
-    out = Path(path)
-    if out.suffix.lower() != suffix:
-        raise MapperError(f"output {out.name!r} should end in {suffix}", where=str(out))
-    if not out.parent.exists():
-        raise MapperError("folder does not exist", where=str(out.parent))
-    return out
+    return output_path(path, suffix, option)

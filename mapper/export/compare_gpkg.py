@@ -21,8 +21,7 @@ import numpy as np
 import pandas as pd
 import pyogrio
 
-from mapper.atomic_file import atomic_path
-from mapper.errors import MapperError
+from mapper.atomic_file import atomic_path, output_path
 from mapper.export import styles as st
 from mapper.export.columns import write_data_columns
 from mapper.export.coverage import Coverage, write_coverage
@@ -146,11 +145,7 @@ def write_comparison_gpkg(path: str | Path, cmp: Comparison, site: Site, unit: s
     unit : str
         Display unit for band labels and display columns.
     """
-    path = Path(path)
-    if path.suffix.lower() != ".gpkg":
-        raise MapperError(f"output {path.name!r} should end in .gpkg", where=str(path))
-    if not path.parent.is_dir():
-        raise MapperError("folder does not exist", where=str(path.parent))
+    path = output_path(path, ".gpkg")
     ecrs = export_crs(site)
     with atomic_path(path) as tmp:
         _frame([{"area_m2": float(cmp.common_region.area), "crs": ecrs.name}], [cmp.common_region], ecrs).to_file(

@@ -20,8 +20,7 @@ from matplotlib.figure import Figure
 from matplotlib.patches import FancyBboxPatch
 
 from mapper import __version__
-from mapper.atomic_file import atomic_path
-from mapper.errors import MapperError
+from mapper.atomic_file import atomic_path, output_path
 from mapper.export import styles as st
 from mapper.export.report import (
     PAGE_SIZE_IN,
@@ -239,14 +238,8 @@ def write_comparison_report(cmp: Comparison, before: Products, after: Products, 
     -------
     ComparisonReport
     """
-    pdf = Path(pdf_path)
-    if pdf.suffix.lower() != ".pdf":
-        raise MapperError(f"output {pdf.name!r} should end in .pdf", where=str(pdf))
-    if not pdf.parent.is_dir():
-        raise MapperError(f"folder {pdf.parent} of the output does not exist", where=str(pdf))
-    png = Path(png_path) if png_path is not None else None
-    if png is not None and png.suffix.lower() != ".png":
-        raise MapperError(f"output {png.name!r} should end in .png", where=str(png))
+    pdf = output_path(pdf_path, ".pdf")
+    png = output_path(png_path, ".png") if png_path is not None else None
     meta = {"Title": f"{before.name}: before and after", "Author": after.operator or "",
             "Subject": "comparison of two field surveys", "Creator": f"mapper {__version__}"}
     with matplotlib.rc_context(RC):

@@ -8,8 +8,7 @@ from pathlib import Path
 
 import pandas as pd
 
-from mapper.atomic_file import atomic_path
-from mapper.errors import MapperError
+from mapper.atomic_file import atomic_path, output_path
 from mapper.export.layers import READING_COLUMNS, reading_records
 from mapper.workflow import Products
 
@@ -41,9 +40,7 @@ def write_readings_csv(products: Products, path: str | Path) -> Path:
     -------
     Path
     """
-    path = Path(path)
-    if not path.parent.exists():
-        raise MapperError("folder does not exist", where=str(path.parent))
+    path = output_path(path)
     records = reading_records(products)
     xs, ys = products.crs.points([r["x_site_m"] for r in records], [r["y_site_m"] for r in records])
     # Written beside the target and renamed into place when complete (mapper.atomic_file): a

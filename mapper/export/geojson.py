@@ -18,7 +18,7 @@ from pyproj import Transformer
 from shapely.geometry import Point, mapping
 from shapely.geometry.base import BaseGeometry
 
-from mapper.atomic_file import atomic_path
+from mapper.atomic_file import atomic_path, output_path
 from mapper.errors import MapperError
 from mapper.export.crs import ExportCRS, export_crs
 from mapper.site.model import Site
@@ -135,11 +135,7 @@ def findings_geojson(products) -> dict:
 
 def write_geojson(products, path: str | Path) -> Path:
     """Write :func:`findings_geojson` to ``path`` (UTF-8), atomically."""
-    path = Path(path)
-    if path.suffix.lower() != ".geojson":
-        raise MapperError(f"output {path.name!r} should end in .geojson", where="--geojson")
-    if not path.parent.is_dir():
-        raise MapperError("folder does not exist", where=str(path.parent))
+    path = output_path(path, ".geojson")
     doc = findings_geojson(products)
     with atomic_path(path) as tmp:
         tmp.write_text(json.dumps(doc, indent=1, allow_nan=False), encoding="utf-8")

@@ -15,8 +15,7 @@ import numpy as np
 import pandas as pd
 import pyogrio
 
-from mapper.atomic_file import atomic_path
-from mapper.errors import MapperError
+from mapper.atomic_file import atomic_path, output_path
 from mapper.export import styles as st
 from mapper.export.columns import write_data_columns
 from mapper.export.coverage import Coverage, write_coverage
@@ -151,11 +150,7 @@ def write_geopackage(products: Products, path: str | Path, *, exported_utc: str 
     -------
     GpkgResult
     """
-    path = Path(path)
-    if path.suffix.lower() != ".gpkg":
-        raise MapperError(f"output {path.name!r} should end in .gpkg", where=str(path))
-    if not path.parent.exists():
-        raise MapperError("folder does not exist", where=str(path.parent))
+    path = output_path(path, ".gpkg")
     counts: dict[str, int] = {}
     layers = all_layers(products)
     with atomic_path(path) as tmp:

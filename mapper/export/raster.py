@@ -26,7 +26,7 @@ from rasterio.transform import Affine
 from scipy import ndimage
 from shapely.geometry.base import BaseGeometry
 
-from mapper.atomic_file import atomic_path
+from mapper.atomic_file import atomic_path, output_path
 from mapper.errors import MapperError
 from mapper.export.crs import ExportCRS
 from mapper.field.model import FieldGrid
@@ -210,9 +210,7 @@ def write_geotiff(grid: FieldGrid, ecrs: ExportCRS, path: str | Path, *, outline
     -------
     Path
     """
-    path = Path(path)
-    if not path.parent.exists():
-        raise MapperError("folder does not exist", where=str(path.parent))
+    path = output_path(path)
     if np.shape(grid.estimate) != (len(grid.y), len(grid.x)) or np.shape(grid.std) != np.shape(grid.estimate):
         raise MapperError(f"grid arrays have shape {np.shape(grid.estimate)}; expected {(len(grid.y), len(grid.x))}")
     r = north_up(grid, ecrs, outline)

@@ -31,8 +31,7 @@ from shapely.geometry.base import BaseGeometry
 from shapely.geometry.polygon import orient
 
 from mapper import __version__
-from mapper.atomic_file import atomic_path
-from mapper.errors import MapperError
+from mapper.atomic_file import atomic_path, output_path
 from mapper.export import styles as st
 from mapper.features import CAUTIONS, LIMITS_ARE_DEFAULTS
 from mapper.features import colour_scale as cs
@@ -695,11 +694,7 @@ def write_report(products: Products, pdf_path: str | Path, *, png_path: str | Pa
     -------
     ReportResult
     """
-    pdf_path = Path(pdf_path)
-    if not pdf_path.parent.exists():
-        raise MapperError("folder does not exist", where=str(pdf_path.parent))
-    if pdf_path.suffix.lower() != ".pdf":
-        raise MapperError(f"output {pdf_path.name!r} should end in .pdf", where=str(pdf_path))
+    pdf_path = output_path(pdf_path, ".pdf")
     png = Path(png_path) if png_path is not None else None
     meta = {"Title": f"{products.name}: electrostatic field survey", "Author": products.operator or "",
             "Subject": "field map and findings", "Creator": f"mapper {__version__}"}

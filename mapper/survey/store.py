@@ -13,7 +13,7 @@ from pathlib import Path
 
 import shapely.errors
 
-from mapper.atomic_file import space_problem
+from mapper.atomic_file import output_path, space_problem
 from mapper.defaults import DEFAULT_THRESHOLD_V_PER_M
 from mapper.errors import MapperError
 from mapper.plan.grid import Plan, PlanPoint
@@ -108,8 +108,7 @@ class Survey:
         path = Path(path)
         if path.exists():
             raise MapperError("survey file already exists; choose another name", where=str(path))
-        if not path.parent.exists():
-            raise MapperError("folder does not exist", where=str(path.parent))
+        output_path(path)  # its folder must exist
         lock = WriterLock(path)
         lock.acquire()
         conn = cls._connect(path)
