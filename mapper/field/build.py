@@ -275,6 +275,173 @@ def _loo_split(est: PhysicalModel, at: np.ndarray, err: np.ndarray, std: np.ndar
     return out
 
 
+@dataclasses.dataclass(frozen=True)
+class _Nodes:
+    """The grid: axes, the nodes inside the outline and their positions (step 1 of build_field)."""
+
+    gx: np.ndarray
+    gy: np.ndarray
+    inside: np.ndarray
+    targets: np.ndarray
+    cell: float
+    bounds: tuple[float, float, float, float]
+
+
+def _check_inputs(xy, values, outline, method, neighbors, variogram, fast, heights_m, height_m):
+    """Refuse what cannot work, naming it; returns the checked readings and heights."""
+    xy, z = checks.readings(xy, values, _WHERE, minimum=1)
+    if variogram is not None and not isinstance(variogram, Variogram):
+        raise MapperError(f"variogram must be a Variogram, got {type(variogram).__name__}", where=_WHERE)
+    if not isinstance(outline, shapely.Polygon | shapely.MultiPolygon) or outline.is_empty or outline.area <= 0:
+        raise MapperError(
+            f"outline must be a non-empty shapely Polygon or MultiPolygon in site metres, got {outline!r:.80}",
+            where=_WHERE,
+        )
+    if neighbors is not None and (isinstance(neighbors, bool) or int(neighbors) < 3):
+        raise MapperError(f"neighbors must be an integer >= 3, got {neighbors!r}", where=_WHERE)
+    if height_m is not None:
+        height_m = checks.positive(height_m, "prediction height height_m (metres above the floor)", _WHERE)
+        if method not in ("physics", "auto"):
+            raise MapperError(
+                f"a field at another height needs the physical model (method physics); method {method} "
+                "interpolates at the meter's height only", where=_WHERE)
+        if fast:
+            raise MapperError("the fast path cannot predict at another height", where=_WHERE)
+    if heights_m is not None:
+        heights_m = np.asarray(heights_m, dtype=float)
+        if heights_m.shape != z.shape:
+            raise MapperError(f"heights_m must have one value per reading ({z.shape[0]}), "
+                              f"got shape {heights_m.shape}", where=_WHERE)
+    return xy, z, heights_m, height_m
+
+
+def _grid(outline, positions: np.ndarray, cell_m: float | None, fast: bool) -> _Nodes:
+    """Step 1: the grid over the outline (cell from the data spacing unless given, metres)."""
+    bounds = tuple(float(b) for b in outline.bounds)
+    if cell_m is None:
+        cell = default_cell(positions, bounds, FAST_NODES if fast else MAX_NODES)
+    else:
+        cell = checks.positive(cell_m, "cell size cell_m (metres)", _WHERE)
+        count = math.ceil((bounds[2] - bounds[0]) / cell) * math.ceil((bounds[3] - bounds[1]) / cell)
+        if count > HARD_MAX_NODES:
+            raise MapperError(
+                f"cell {cell:g} m gives {count} grid nodes over the outline; at most "
+                f"{HARD_MAX_NODES} are accepted (use a larger cell)",
+                where=_WHERE,
+            )
+    gx, gy = grid_axes(bounds, cell)
+    mx, my = np.meshgrid(gx, gy)
+    inside = shapely.contains_xy(outline, mx, my)
+    targets = np.column_stack([mx[inside], my[inside]])
+    if targets.shape[0] == 0:
+        raise MapperError(
+            f"cell {cell:g} m leaves no grid node inside the site outline "
+            f"({bounds[2] - bounds[0]:.3g} m x {bounds[3] - bounds[1]:.3g} m); use a smaller cell",
+            where=_WHERE,
+        )
+    return _Nodes(gx, gy, inside, targets, cell, bounds)
+
+
+def _candidate_kinds(method: str, fast: bool, n: int, height_m: float | None) -> list[str]:
+    """Step 2a: which methods compete."""
+    if method == "auto" and height_m is not None:
+        return ["physics"]
+    if method == "auto":
+        kinds = ["kriging"] if fast else ["kriging", "universal", "rbf", "idw"]
+        if not fast and n >= PHYSICS_MIN_POSITIONS:
+            kinds.append("physics")
+        return kinds
+    return [method]
+
+
+def _candidates(kinds, method, fast, xy, z, merged, variogram, neighbors, nodes: _Nodes, spacing, seeds,
+                heights_m) -> tuple[dict[str, tuple[object, dict]], list[str]]:
+    """Step 2b: each candidate fitted (for ``auto``, one that cannot be fitted is skipped and noted)."""
+    n = merged.xy.shape[0]
+    notes: list[str] = []
+    candidates: dict[str, tuple[object, dict]] = {}
+    for kind in kinds:
+        try:
+            if kind in ("kriging", "universal"):
+                est, params = _kriging_setup(kind, merged, variogram, neighbors, nodes.targets.shape[0],
+                                             nodes.cell, spacing, fast)
+            elif kind == "rbf":
+                nb = neighbors if neighbors is not None else (None if n <= 1000 else 64)
+                est, params = RBF(neighbors=nb), {"kernel": "thin_plate_spline", "neighbors": nb}
+            elif kind == "physics":
+                est = PhysicalModel(seeds or (), bounds=nodes.bounds).fit(xy, z, heights_m)
+                params = {"physics": est.describe()}
+            else:
+                nb = neighbors if neighbors is not None else 16
+                est, params = IDW(neighbors=nb), {"power": 2.0, "neighbors": nb}
+            if kind != "physics":
+                est.fit(xy, z)
+        except MapperError as exc:
+            if method != "auto":
+                raise
+            notes.append(f"{kind} skipped: {exc.message}")
+            continue
+        if kind == "rbf":
+            params["smoothing"] = est.smoothing_
+        candidates[kind] = (est, params)
+    if not candidates and fast and method == "auto":
+        # Early in a walk there are too few pairs for a variogram: the app still gets a map.
+        est = IDW().fit(xy, z)
+        candidates["idw"] = (est, {"power": 2.0, "neighbors": est.neighbors})
+    if not candidates:
+        raise MapperError("no method could be fitted: " + "; ".join(notes), where=_WHERE)
+    return candidates, notes
+
+
+def _cross_validate(candidates, at: np.ndarray, n: int) -> tuple[dict, list[CVStats]]:
+    """Step 3: leave-one-out errors of every candidate at the same positions ``at`` (of ``n``)."""
+    table: list[CVStats] = []
+    loo: dict[str, tuple[np.ndarray, np.ndarray | None]] = {}
+    if n >= 3:
+        for kind, (est, _) in candidates.items():
+            loo[kind] = est.loo(at)
+            table.append(cv_stats(kind, *loo[kind]))
+    return loo, table
+
+
+def _select(candidates, table: list[CVStats], method: str, fast: bool) -> tuple[str, str]:
+    """Step 4: the chosen method and why (lowest leave-one-out RMSE, kriging preferred when close)."""
+    if len(candidates) == 1:
+        chosen = next(iter(candidates))
+        if fast and method == "auto":
+            name = "ordinary kriging" if chosen == "kriging" else "inverse-distance weighting"
+            return chosen, f"fast path: {name} without method comparison"
+        return chosen, f"method {chosen} requested"
+    best = min(table, key=lambda c: c.rmse_v_per_m)
+    chosen = best.method
+    reason = f"{chosen}: lowest leave-one-out RMSE {best.rmse_v_per_m:.4g} V/m"
+    if chosen in ("rbf", "idw"):
+        krig = [c for c in table if c.method in ("kriging", "universal")]
+        if krig:
+            kb = min(krig, key=lambda c: c.rmse_v_per_m)
+            if kb.rmse_v_per_m <= best.rmse_v_per_m * (1 + KRIGING_PREFERENCE):
+                chosen = kb.method
+                reason = (
+                    f"{chosen}: leave-one-out RMSE {kb.rmse_v_per_m:.4g} V/m, within "
+                    f"{KRIGING_PREFERENCE:.0%} of {best.method} ({best.rmse_v_per_m:.4g} V/m) and it "
+                    "also gives a standard deviation"
+                )
+    others = ", ".join(f"{c.method} {c.rmse_v_per_m:.4g}" for c in table if c.method != chosen)
+    return chosen, reason + f" (others: {others} V/m)"
+
+
+def _assemble(nodes: _Nodes, est: np.ndarray, std: np.ndarray, chosen: str, params: dict, cv, table,
+              reason: str) -> FieldGrid:
+    """Step 6: the estimate and std onto the full grid (NaN outside the outline)."""
+    shape = (nodes.gy.shape[0], nodes.gx.shape[0])
+    estimate = np.full(shape, np.nan)
+    sd = np.full(shape, np.nan)
+    estimate[nodes.inside] = est
+    sd[nodes.inside] = std
+    return FieldGrid(x=nodes.gx, y=nodes.gy, estimate=estimate, std=sd, method=chosen, params=params,
+                     cv=cv, cv_table=tuple(table), reason=reason)
+
+
 def build_field(
     xy,
     values,
@@ -331,166 +498,59 @@ def build_field(
         chosen method's ``cv`` carries the standardised errors after scaling (RMS 1 by
         construction; the mean stays informative). Where kriging cannot be fitted ``std`` stays
         NaN and ``std_source`` and ``reason`` say why.
+
+    Notes
+    -----
+    Named steps: the grid (:func:`_grid`), the candidates (:func:`_candidate_kinds`,
+    :func:`_candidates`), cross-validation (:func:`_cross_validate`), selection (:func:`_select`),
+    calibration of a borrowed standard deviation (:func:`_calibrated_std`), assembly
+    (:func:`_assemble`).
     """
     method = checks.choose(method, METHODS, "method", _WHERE)
-    xy, z = checks.readings(xy, values, _WHERE, minimum=1)
-    if variogram is not None and not isinstance(variogram, Variogram):
-        raise MapperError(f"variogram must be a Variogram, got {type(variogram).__name__}", where=_WHERE)
-    if not isinstance(outline, shapely.Polygon | shapely.MultiPolygon) or outline.is_empty or outline.area <= 0:
-        raise MapperError(
-            f"outline must be a non-empty shapely Polygon or MultiPolygon in site metres, got {outline!r:.80}",
-            where=_WHERE,
-        )
-    if neighbors is not None and (isinstance(neighbors, bool) or int(neighbors) < 3):
-        raise MapperError(f"neighbors must be an integer >= 3, got {neighbors!r}", where=_WHERE)
-    if height_m is not None:
-        height_m = checks.positive(height_m, "prediction height height_m (metres above the floor)", _WHERE)
-        if method not in ("physics", "auto"):
-            raise MapperError(
-                f"a field at another height needs the physical model (method physics); method {method} "
-                "interpolates at the meter's height only", where=_WHERE)
-        if fast:
-            raise MapperError("the fast path cannot predict at another height", where=_WHERE)
-    if heights_m is not None:
-        heights_m = np.asarray(heights_m, dtype=float)
-        if heights_m.shape != z.shape:
-            raise MapperError(f"heights_m must have one value per reading ({z.shape[0]}), got shape {heights_m.shape}", where=_WHERE)
+    xy, z, heights_m, height_m = _check_inputs(xy, values, outline, method, neighbors, variogram, fast,
+                                               heights_m, height_m)
     merged = merge_repeats(xy, z)
-    n = merged.xy.shape[0]
-    bounds = tuple(float(b) for b in outline.bounds)
-    if cell_m is None:
-        cell = default_cell(merged.xy, bounds, FAST_NODES if fast else MAX_NODES)
-    else:
-        cell = checks.positive(cell_m, "cell size cell_m (metres)", _WHERE)
-        nodes = math.ceil((bounds[2] - bounds[0]) / cell) * math.ceil((bounds[3] - bounds[1]) / cell)
-        if nodes > HARD_MAX_NODES:
-            raise MapperError(
-                f"cell {cell:g} m gives {nodes} grid nodes over the outline; at most "
-                f"{HARD_MAX_NODES} are accepted (use a larger cell)",
-                where=_WHERE,
-            )
-    gx, gy = grid_axes(bounds, cell)
-    mx, my = np.meshgrid(gx, gy)
-    inside = shapely.contains_xy(outline, mx, my)
-    targets = np.column_stack([mx[inside], my[inside]])
-    if targets.shape[0] == 0:
-        raise MapperError(
-            f"cell {cell:g} m leaves no grid node inside the site outline "
-            f"({bounds[2] - bounds[0]:.3g} m x {bounds[3] - bounds[1]:.3g} m); use a smaller cell",
-            where=_WHERE,
-        )
+    nodes = _grid(outline, merged.xy, cell_m, fast)
     spacing = data_spacing(merged.xy)
-
-    if method == "auto" and height_m is not None:
-        kinds = ["physics"]
-    elif method == "auto":
-        kinds = ["kriging"] if fast else ["kriging", "universal", "rbf", "idw"]
-        if not fast and n >= PHYSICS_MIN_POSITIONS:
-            kinds.append("physics")
-    else:
-        kinds = [method]
-    notes: list[str] = []
-    candidates: dict[str, tuple[object, dict]] = {}
-    for kind in kinds:
-        try:
-            if kind in ("kriging", "universal"):
-                est, params = _kriging_setup(kind, merged, variogram, neighbors, targets.shape[0], cell, spacing, fast)
-            elif kind == "rbf":
-                nb = neighbors if neighbors is not None else (None if n <= 1000 else 64)
-                est, params = RBF(neighbors=nb), {"kernel": "thin_plate_spline", "neighbors": nb}
-            elif kind == "physics":
-                est = PhysicalModel(seeds or (), bounds=bounds).fit(xy, z, heights_m)
-                params = {"physics": est.describe()}
-            else:
-                nb = neighbors if neighbors is not None else 16
-                est, params = IDW(neighbors=nb), {"power": 2.0, "neighbors": nb}
-            if kind != "physics":
-                est.fit(xy, z)
-        except MapperError as exc:
-            if method != "auto":
-                raise
-            notes.append(f"{kind} skipped: {exc.message}")
-            continue
-        if kind == "rbf":
-            params["smoothing"] = est.smoothing_
-        candidates[kind] = (est, params)
-    if not candidates and fast and method == "auto":
-        # Early in a walk there are too few pairs for a variogram: the app still gets a map.
-        est = IDW().fit(xy, z)
-        candidates["idw"] = (est, {"power": 2.0, "neighbors": est.neighbors})
-    if not candidates:
-        raise MapperError("no method could be fitted: " + "; ".join(notes), where=_WHERE)
-
-    table: list[CVStats] = []
-    loo: dict[str, tuple[np.ndarray, np.ndarray | None]] = {}
-    at = _cv_subset(n, 300 if fast else 2000)
-    if n >= 3:
-        for kind, (est, _) in candidates.items():
-            loo[kind] = est.loo(at)
-            table.append(cv_stats(kind, *loo[kind]))
-    by_kind = {c.method: c for c in table}
-    if len(candidates) == 1:
-        chosen = next(iter(candidates))
-        if fast and method == "auto":
-            reason = f"fast path: {'ordinary kriging' if chosen == 'kriging' else 'inverse-distance weighting'} without method comparison"
-        else:
-            reason = f"method {chosen} requested"
-    else:
-        best = min(table, key=lambda c: c.rmse_v_per_m)
-        chosen = best.method
-        reason = f"{chosen}: lowest leave-one-out RMSE {best.rmse_v_per_m:.4g} V/m"
-        if chosen in ("rbf", "idw"):
-            krig = [c for c in table if c.method in ("kriging", "universal")]
-            if krig:
-                kb = min(krig, key=lambda c: c.rmse_v_per_m)
-                if kb.rmse_v_per_m <= best.rmse_v_per_m * (1 + KRIGING_PREFERENCE):
-                    chosen = kb.method
-                    reason = (
-                        f"{chosen}: leave-one-out RMSE {kb.rmse_v_per_m:.4g} V/m, within "
-                        f"{KRIGING_PREFERENCE:.0%} of {best.method} ({best.rmse_v_per_m:.4g} V/m) and it "
-                        "also gives a standard deviation"
-                    )
-        others = ", ".join(f"{c.method} {c.rmse_v_per_m:.4g}" for c in table if c.method != chosen)
-        reason += f" (others: {others} V/m)"
+    kinds = _candidate_kinds(method, fast, merged.xy.shape[0], height_m)
+    candidates, notes = _candidates(kinds, method, fast, xy, z, merged, variogram, neighbors, nodes, spacing,
+                                    seeds, heights_m)
+    at = _cv_subset(merged.xy.shape[0], 300 if fast else 2000)
+    loo, table = _cross_validate(candidates, at, merged.xy.shape[0])
+    chosen, reason = _select(candidates, table, method, fast)
     if notes:
         reason += "; " + "; ".join(notes)
-
     est, params = candidates[chosen]
     params = dict(params)
     if chosen == "physics":
-        e, s = est.predict(targets, height_m)
+        e, s = est.predict(nodes.targets, height_m)
         params["prediction_height_m"] = est.height_m_ if height_m is None else height_m
         if "physics" in loo:
             params["loo_split"] = _loo_split(est, at, *loo["physics"])
         if height_m is not None:
             reason += f"; field predicted at {height_m:g} m above the floor (readings at {est.height_m_:g} m)"
     else:
-        e, s = est.predict(targets)
+        e, s = est.predict(nodes.targets)
+    by_kind = {c.method: c for c in table}
     if chosen in NO_STD_METHODS:
-        ref = _reference_kriging(candidates, kinds, xy, z, merged, variogram, neighbors, targets.shape[0],
-                                 cell, spacing, fast, at, loo)
-        s, extra, cv_chosen, text = _calibrated_std(chosen, ref, loo.get(chosen), by_kind.get(chosen), targets,
-                                                    merged.xy[at])
+        # calibrate: the borrowed, locally scaled kriging standard deviation
+        ref = _reference_kriging(candidates, kinds, xy, z, merged, variogram, neighbors, nodes.targets.shape[0],
+                                 nodes.cell, spacing, fast, at, loo)
+        s, extra, cv_chosen, text = _calibrated_std(chosen, ref, loo.get(chosen), by_kind.get(chosen),
+                                                    nodes.targets, merged.xy[at])
         params.update(extra)
         reason += "; " + text
         if cv_chosen is not None:
             by_kind[chosen] = cv_chosen
             table = [cv_chosen if c.method == chosen else c for c in table]
-    estimate = np.full(mx.shape, np.nan)
-    std = np.full(mx.shape, np.nan)
-    estimate[inside] = e
-    std[inside] = s
     params.update(
         {
-            "cell_m": cell,
+            "cell_m": nodes.cell,
             "n_readings": int(xy.shape[0]),
-            "n_positions": int(n),
+            "n_positions": int(merged.xy.shape[0]),
             "repeatability_v_per_m": merged.repeatability_v_per_m,
             "data_spacing_m": spacing,
             "fast": bool(fast),
         }
     )
-    return FieldGrid(
-        x=gx, y=gy, estimate=estimate, std=std, method=chosen, params=params,
-        cv=by_kind.get(chosen), cv_table=tuple(table), reason=reason,
-    )
+    return _assemble(nodes, e, s, chosen, params, by_kind.get(chosen), table, reason)
