@@ -38,6 +38,8 @@ def psycopg():  # noqa: ANN201 - the module
 def describe(url: str | None) -> str:
     """The connection target in words, without any password (``user@host:port/dbname``)."""
     info = _params(url)
+    if info is None:
+        return "database (connection string not understood)"
     host = info.get("host") or os.environ.get("PGHOST") or "local socket"
     port = info.get("port") or os.environ.get("PGPORT") or ""
     db = info.get("dbname") or os.environ.get("PGDATABASE") or ""
@@ -46,7 +48,7 @@ def describe(url: str | None) -> str:
     return f"database {text}"
 
 
-def _params(url: str | None) -> dict[str, str]:
+def _params(url: str | None) -> dict[str, str] | None:
     try:
         from psycopg.conninfo import conninfo_to_dict
     except ImportError:
@@ -54,7 +56,7 @@ def _params(url: str | None) -> dict[str, str]:
     try:
         return {k: str(v) for k, v in conninfo_to_dict(url or "").items() if k != "password"}
     except Exception:  # noqa: BLE001 - a malformed URL: described by the connect error instead
-        return {}
+        return None
 
 
 def _password(url: str | None) -> str | None:

@@ -24,6 +24,7 @@ COMMANDS = (
     "cmd_compare",
     "cmd_export",
     "cmd_report",
+    "cmd_archive",
     "cmd_demo",
     "cmd_walk",
 )
