@@ -18,7 +18,7 @@ from typing import Any, TypeVar
 from mapper.errors import MapperError
 
 T = TypeVar("T")
-#: ``application_name`` the archive's connections carry (visible in ``pg_stat_activity``).
+#: ``application_name`` the archive's connections carry (``pg_stat_activity``) unless ``PGAPPNAME`` is set.
 APPLICATION_NAME = "mapper archive"
 #: How often a transaction that lost a serialisation conflict is run again.
 MAX_ATTEMPTS = 30
@@ -105,8 +105,8 @@ def connect(url: str | None, *, autocommit: bool = False) -> Any:
     """
     pg = psycopg()
     try:
-        return pg.connect(url or "", autocommit=autocommit, application_name=APPLICATION_NAME,
-                          connect_timeout=10)
+        return pg.connect(url or "", autocommit=autocommit, connect_timeout=10,
+                          application_name=os.environ.get("PGAPPNAME") or APPLICATION_NAME)
     except pg.Error as exc:
         raise MapperError(f"cannot connect to the archive: {clean_message(exc, url)}",
                           where=describe(url)) from None

@@ -100,7 +100,7 @@ def archived_content(cur, survey_id: int, where: str) -> SurveyContent:
         raise MapperError(f"the archive holds no survey with id {survey_id} (see 'mapper archive list')",
                           where=where)
     site_json, site_text = row
-    cur.execute(f"SELECT key, value FROM {SCHEMA}.survey_meta WHERE survey_id = %s ORDER BY key", (survey_id,))
+    cur.execute(f"SELECT key, value FROM {SCHEMA}.survey_meta WHERE survey_id = %s ORDER BY ordinal", (survey_id,))
     meta = tuple((k, v) for k, v in cur.fetchall())
     tables = {}
     for name, cols in COLUMNS.items():
@@ -109,7 +109,7 @@ def archived_content(cur, survey_id: int, where: str) -> SurveyContent:
                     (survey_id,))
         tables[name] = tuple(tuple(bytes(v) if isinstance(v, memoryview) else v for v in r)
                              for r in cur.fetchall())
-    return SurveyContent(tuple(sorted(meta)), site_json, site_text, tables)
+    return SurveyContent(meta, site_json, site_text, tables)
 
 
 def pull(url: str | None, survey_id: int, out: str | Path) -> Path:

@@ -326,7 +326,8 @@ def _push_body(content: SurveyContent, products: Products, where: str):
             for table in ("survey_meta", "meters", "hotspots", "sources", "zone_results", "rasters"):
                 cur.execute(f"DELETE FROM {SCHEMA}.{table} WHERE survey_id = %s", (survey_id,))
         # meters before readings (readings name their meter), then the append-only tables
-        _copy(cur, "survey_meta", ("survey_id", "key", "value"), ((survey_id, k, v) for k, v in content.meta))
+        _copy(cur, "survey_meta", ("survey_id", "ordinal", "key", "value"),
+              ((survey_id, i, k, v) for i, (k, v) in enumerate(content.meta)))
         _copy(cur, "meters", ("survey_id", *COLUMNS["meters"]), ((survey_id, *r) for r in content.tables["meters"]))
         for table in APPEND_ONLY:
             new_rows = [r for r in content.tables[table] if r[0] > start[table]]

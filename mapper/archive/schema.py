@@ -86,6 +86,7 @@ CREATE TABLE {SCHEMA}.surveys (
 CREATE INDEX surveys_site ON {SCHEMA}.surveys (site_id, started_utc);
 CREATE TABLE {SCHEMA}.survey_meta (
     survey_id  bigint NOT NULL REFERENCES {SCHEMA}.surveys(id),
+    ordinal    integer NOT NULL,
     key        text NOT NULL,
     value      text NOT NULL,
     PRIMARY KEY (survey_id, key)

@@ -48,7 +48,7 @@ class SurveyContent:
     Attributes
     ----------
     meta : tuple of (str, str)
-        Metadata key/value pairs, sorted by key.
+        Metadata key/value pairs, in the file's order.
     site_json : str
         The stored site (site metres, WKT) as written in the file.
     site_text : str or None
@@ -113,7 +113,7 @@ def read_content(survey: Survey) -> SurveyContent:
         except sqlite3.OperationalError:  # a version-1 file has no field_models table
             rows = []
         tables[name] = tuple(tuple(bytes(v) if isinstance(v, memoryview) else v for v in r) for r in rows)
-    meta = tuple(sorted((r[0], r[1]) for r in conn.execute("SELECT key, value FROM meta")))
+    meta = tuple((r[0], r[1]) for r in conn.execute("SELECT key, value FROM meta ORDER BY rowid"))
     site = conn.execute("SELECT json, source_text FROM site WHERE id = 1").fetchone()
     return SurveyContent(meta, site[0], site[1], tables)
 
