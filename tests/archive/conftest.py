@@ -52,3 +52,17 @@ def archive_db(pg_server) -> str:
     with connect(url, autocommit=True) as conn:
         initialise(conn, url)
     return url
+
+
+@pytest.fixture(scope="session")
+def hall_files(tmp_path_factory):
+    """The sample hall's three surveys, each with its field model stored (read them, never change them)."""
+    from mapper.cli.main import main
+    from tests.archive.helpers import HALL_SURVEYS, hall_survey
+
+    folder = tmp_path_factory.mktemp("hall_files")
+    paths = {}
+    for name in HALL_SURVEYS:
+        paths[name] = hall_survey(folder, name)
+        assert main(["grid", str(paths[name])]) == 0
+    return paths

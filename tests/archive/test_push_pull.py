@@ -16,7 +16,7 @@ from mapper.archive.schema import SCHEMA
 from mapper.cli.main import main
 from mapper.survey.store import NewReading, Survey
 from tests.archive.conftest import new_database
-from tests.archive.helpers import hall_survey, small_survey
+from tests.archive.helpers import small_survey
 
 TABLES = ("sites", "zones", "assets", "surveys", "survey_meta", "plan_points", "meters", "readings",
           "conditions", "events", "field_models", "hotspots", "sources", "zone_results", "rasters")
@@ -47,11 +47,10 @@ def snapshot(url: str) -> dict[str, list[tuple]]:
 
 
 @pytest.fixture(scope="module")
-def hall(tmp_path_factory, pg_server):
+def hall(tmp_path_factory, pg_server, hall_files):
     """The sample hall survey, with its field model stored, pushed into a fresh archive."""
     folder = tmp_path_factory.mktemp("hall")
-    path = hall_survey(folder)
-    assert main(["grid", str(path)]) == 0
+    path = hall_files["north_hall"]
     url = new_database(pg_server)
     assert main(["archive", "init", "--db", url]) == 0
     first = push(path, url)
