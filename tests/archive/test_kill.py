@@ -1,0 +1,133 @@
+"""A push killed at random points (SIGKILL of the pushing process) leaves the whole survey or none of it."""
+
+from __future__ import annotations
+
+import multiprocessing
+import os
+import random
+import time
+from dataclasses import replace
+
+import psycopg
+import pytest
+
+from mapper.archive.push import push
+from mapper.archive.schema import SCHEMA
+from mapper.cli.main import main
+from mapper.survey.content import read_content, write_content
+from mapper.survey.store import Survey
+from tests.archive.helpers import small_survey
+
+TRIALS = 20
+PER_SURVEY = ("plan_points", "readings", "conditions", "events", "field_models", "survey_meta", "meters",
+              "hotspots", "zone_results", "rasters")
+
+
+def counts(conn, survey_id: int) -> dict[str, int]:
+    return {t: conn.execute(f"SELECT count(*) FROM {SCHEMA}.{t} WHERE survey_id = %s", (survey_id,)).fetchone()[0]
+            for t in PER_SURVEY}
+
+
+def copies(base, folder, n):
+    """``n`` distinct surveys with the rows of ``base`` (each its own creation time, so its own identity)."""
+    with Survey.open(base) as survey:
+        content = read_content(survey)
+    out = []
+    for k in range(n):
+        meta = tuple((key, value.replace(".", f".{k:03d}", 1)[:-9] + "+00:00" if key == "created_utc" else value)
+                     for key, value in content.meta)
+        copy = replace(content, meta=meta)
+        out.append((write_content(folder / f"copy{k}.survey", copy), copy.uid))
+    assert len({uid for _, uid in out}) == n
+    return out
+
+
+def _push_in_child(path, url: str, name: str) -> None:
+    """The pushing process: ``mapper archive push`` as the command line runs it."""
+    devnull = os.open(os.devnull, os.O_WRONLY)
+    os.dup2(devnull, 1)
+    os.dup2(devnull, 2)
+    os.environ["PGAPPNAME"] = name
+    os._exit(main(["archive", "push", str(path), "--db", url]))
+
+
+def trial(k: int, path, url: str, rng: random.Random, full_s: float) -> tuple[bool, int | None]:
+    """Start a pushing process (forked: already imported) and SIGKILL it at a random point.
+
+    Returns whether its transaction had begun when it was killed, and its exit code when it
+    finished before the kill.
+    """
+    name = f"mapper-kill-{k}"
+    proc = multiprocessing.get_context("fork").Process(target=_push_in_child, args=(path, url, name))
+    in_transaction = False
+    with psycopg.connect(url, autocommit=True) as watch:
+        proc.start()
+        if k % 2 == 0:  # anywhere in the run: reading the survey, products, the transaction, after
+            time.sleep(rng.uniform(0.0, 1.2 * full_s))
+        else:  # inside the transaction: wait for it to begin, then a random time into it
+            deadline = time.monotonic() + 20
+            while proc.is_alive() and time.monotonic() < deadline:
+                row = watch.execute("SELECT xact_start FROM pg_stat_activity WHERE application_name = %s",
+                                    (name,)).fetchone()
+                if row and row[0] is not None:
+                    in_transaction = True
+                    break
+                time.sleep(0.002)
+            time.sleep(rng.uniform(0.0, 0.2))
+        finished = not proc.is_alive()
+        proc.kill()  # SIGKILL
+        proc.join()
+    return in_transaction, proc.exitcode if finished else None
+
+
+@pytest.fixture(scope="module")
+def prepared(tmp_path_factory, pg_server):
+    from tests.archive.conftest import new_database
+
+    folder = tmp_path_factory.mktemp("kill")
+    base = small_survey(folder, "Bay", "kill", repeats=20)
+    url = new_database(pg_server, "tpl_postgis")
+    assert main(["archive", "init", "--db", url]) == 0
+    started = time.monotonic()
+    reference = push(base, url)
+    full_s = time.monotonic() - started
+    with psycopg.connect(url) as conn:
+        expected = counts(conn, reference.survey_id)
+    return {"url": url, "folder": folder, "base": base, "expected": expected, "full_s": full_s}
+
+
+def test_killed_pushes_leave_whole_surveys_or_nothing(prepared):
+    url, expected = prepared["url"], prepared["expected"]
+    assert expected["readings"] == 20 * expected["plan_points"] and expected["hotspots"] > 0
+    surveys = copies(prepared["base"], prepared["folder"], TRIALS)
+    rng = random.Random(14)  # fixed seed: the same random kill points each run
+    record = [trial(k, surveys[k][0], url, rng, prepared["full_s"]) for k in range(TRIALS)]
+    outcomes = []
+    with psycopg.connect(url) as conn:
+        for k, (_, uid) in enumerate(surveys):
+            row = conn.execute(f"SELECT id FROM {SCHEMA}.surveys WHERE uid = %s", (uid,)).fetchone()
+            if row is None:
+                outcomes.append("none")
+            else:
+                assert counts(conn, row[0]) == expected, k
+                outcomes.append("whole")
+        # nothing belongs to no survey: every row is in a survey that is there whole
+        stray = conn.execute(
+            f"SELECT count(*) FROM {SCHEMA}.readings r LEFT JOIN {SCHEMA}.surveys s ON s.id = r.survey_id "
+            "WHERE s.id IS NULL").fetchone()[0]
+        assert stray == 0
+        total = conn.execute(f"SELECT count(*) FROM {SCHEMA}.readings").fetchone()[0]
+        assert total == expected["readings"] * (1 + outcomes.count("whole"))
+    killed_mid_transaction = sum(1 for k in range(TRIALS) if record[k][0] and outcomes[k] == "none")
+    for k in range(TRIALS):  # a push that ran to its end before the kill landed whole
+        if record[k][1] == 0:
+            assert outcomes[k] == "whole"
+    print(f"kill trials: {outcomes.count('whole')} whole, {outcomes.count('none')} none, "
+          f"{killed_mid_transaction} killed inside the transaction")
+    assert killed_mid_transaction >= 3
+    # a killed push blocks nothing: the same surveys push completely afterwards
+    for k in [k for k in range(TRIALS) if outcomes[k] == "none"][:3]:
+        result = push(surveys[k][0], url)
+        assert result.status == "added"
+        with psycopg.connect(url) as conn:
+            assert counts(conn, result.survey_id) == expected
