@@ -94,3 +94,25 @@ def small_survey(folder: Path, site: str, tag: str, *, repeats: int = 1, start_d
     if field_model:
         assert main(["grid", str(path), "--method", "idw"]) == 0
     return path
+
+
+def distinct_copies(base: Path, folder: Path, n: int, tag: str) -> list[Path]:
+    """``n`` survey files with the rows of ``base`` but each its own creation time (so its own identity).
+
+    Written through :func:`mapper.survey.content.write_content`, as ``mapper archive pull`` writes.
+    """
+    from dataclasses import replace
+    from datetime import datetime, timedelta
+
+    from mapper.survey.content import read_content, write_content
+    from mapper.survey.store import Survey, to_utc_text
+
+    with Survey.open(base) as survey:
+        content = read_content(survey)
+    created = datetime.fromisoformat(content.meta_dict["created_utc"])
+    out = []
+    for k in range(n):
+        stamp = to_utc_text(created + timedelta(seconds=k + 1))
+        meta = tuple((key, stamp if key == "created_utc" else value) for key, value in content.meta)
+        out.append(write_content(folder / f"{tag}{k}.survey", replace(content, meta=meta)))
+    return out

@@ -6,7 +6,6 @@ import multiprocessing
 import os
 import random
 import time
-from dataclasses import replace
 
 import psycopg
 import pytest
@@ -14,9 +13,9 @@ import pytest
 from mapper.archive.push import push
 from mapper.archive.schema import SCHEMA
 from mapper.cli.main import main
-from mapper.survey.content import read_content, write_content
+from mapper.survey.content import read_content
 from mapper.survey.store import Survey
-from tests.archive.helpers import small_survey
+from tests.archive.helpers import distinct_copies, small_survey
 
 TRIALS = 20
 PER_SURVEY = ("plan_points", "readings", "conditions", "events", "field_models", "survey_meta", "meters",
@@ -26,20 +25,6 @@ PER_SURVEY = ("plan_points", "readings", "conditions", "events", "field_models",
 def counts(conn, survey_id: int) -> dict[str, int]:
     return {t: conn.execute(f"SELECT count(*) FROM {SCHEMA}.{t} WHERE survey_id = %s", (survey_id,)).fetchone()[0]
             for t in PER_SURVEY}
-
-
-def copies(base, folder, n):
-    """``n`` distinct surveys with the rows of ``base`` (each its own creation time, so its own identity)."""
-    with Survey.open(base) as survey:
-        content = read_content(survey)
-    out = []
-    for k in range(n):
-        meta = tuple((key, value.replace(".", f".{k:03d}", 1)[:-9] + "+00:00" if key == "created_utc" else value)
-                     for key, value in content.meta)
-        copy = replace(content, meta=meta)
-        out.append((write_content(folder / f"copy{k}.survey", copy), copy.uid))
-    assert len({uid for _, uid in out}) == n
-    return out
 
 
 def _push_in_child(path, url: str, name: str) -> None:
@@ -99,7 +84,12 @@ def prepared(tmp_path_factory, pg_server):
 def test_killed_pushes_leave_whole_surveys_or_nothing(prepared):
     url, expected = prepared["url"], prepared["expected"]
     assert expected["readings"] == 20 * expected["plan_points"] and expected["hotspots"] > 0
-    surveys = copies(prepared["base"], prepared["folder"], TRIALS)
+    paths = distinct_copies(prepared["base"], prepared["folder"], TRIALS, "copy")
+    surveys = []
+    for path in paths:
+        with Survey.open(path) as survey:
+            surveys.append((path, read_content(survey).uid))
+    assert len({uid for _, uid in surveys}) == TRIALS
     rng = random.Random(14)  # fixed seed: the same random kill points each run
     record = [trial(k, surveys[k][0], url, rng, prepared["full_s"]) for k in range(TRIALS)]
     outcomes = []
