@@ -61,14 +61,15 @@ class Server:
             argv = ["runuser", "-u", self.user, "--", *argv]
         return subprocess.run(argv, capture_output=True, text=True, **kw)
 
-    def start(self) -> None:
+    def start(self, fsync: bool = False) -> None:
         data = self.root / "data"
         init = self._run([str(self.bindir / "initdb"), "-D", str(data), "-U", SUPERUSER, "--auth=trust",
                           "-E", "UTF8", "--locale=C"])
         if init.returncode != 0:
             raise RuntimeError(f"initdb failed: {init.stderr.strip()}")
-        options = (f"-k {self.socket_dir} -c listen_addresses='' -c fsync=off -c synchronous_commit=off "
-                   "-c full_page_writes=off -c max_connections=60 -c max_pred_locks_per_transaction=256")
+        options = f"-k {self.socket_dir} -c listen_addresses='' -c max_connections=60"
+        if not fsync:  # the tests kill clients, never the server: durability on disk is not tested
+            options += " -c fsync=off -c synchronous_commit=off -c full_page_writes=off"
         started = self._run([str(self.bindir / "pg_ctl"), "-D", str(data), "-o", options, "-l",
                              str(self.root / "server.log"), "-w", "-t", "60", "start"])
         if started.returncode != 0:
@@ -80,8 +81,8 @@ class Server:
         shutil.rmtree(self.root, ignore_errors=True)
 
 
-def start_server() -> tuple[Server | None, str | None]:
-    """Start a server, or say why not."""
+def start_server(fsync: bool = False) -> tuple[Server | None, str | None]:
+    """Start a server, or say why not (``fsync`` keeps the server's durable defaults)."""
     bindir = find_bindir()
     if bindir is None:
         return None, "no PostgreSQL binaries (initdb, pg_ctl) found in /usr/lib/postgresql/*/bin or on PATH"
@@ -107,7 +108,7 @@ def start_server() -> tuple[Server | None, str | None]:
             os.chown(path, entry.pw_uid, entry.pw_gid)
     server = Server(root, bindir, user)
     try:
-        server.start()
+        server.start(fsync)
     except RuntimeError as exc:
         shutil.rmtree(root, ignore_errors=True)
         return None, str(exc)
