@@ -64,5 +64,5 @@ def hall_files(tmp_path_factory):
     paths = {}
     for name in HALL_SURVEYS:
         paths[name] = hall_survey(folder, name)
-        assert main(["grid", str(paths[name])]) == 0
+        assert main(["grid", str(paths[name]), "--method", "idw"]) == 0
     return paths
