@@ -115,6 +115,8 @@ class SurveyStep:
         Hotspots present.
     cleared : tuple of str
         Places present in the survey before and not in this one.
+    uid : str
+        The survey's stable identity (:attr:`mapper.survey.content.SurveyContent.uid`).
     """
 
     survey_id: int
@@ -126,6 +128,7 @@ class SurveyStep:
     zones: tuple[ZoneState, ...]
     hotspots: tuple[HotspotEntry, ...]
     cleared: tuple[str, ...] = ()
+    uid: str = ""
 
     def status_of(self, place: str) -> str | None:
         """``new``, ``recurring`` or ``cleared`` for a place at this survey, ``None`` if absent."""
@@ -178,7 +181,7 @@ class History:
         return {
             "site": self.site,
             "surveys": [
-                {**{k: v for k, v in s.__dict__.items() if k not in ("zones", "hotspots", "cleared")},
+                {**{k: v for k, v in s.__dict__.items() if k not in ("zones", "hotspots", "cleared", "uid")},
                  "zones": [z.__dict__ for z in s.zones],
                  "hotspots": [h.__dict__ for h in s.hotspots],
                  "cleared": list(s.cleared)}
@@ -258,7 +261,7 @@ def site_history(url: str | None, site: str) -> History:
                                   where=where)
             site_id, site_name = row
             cur.execute(
-                f"SELECT id, started_utc, max_abs_reading_v_per_m, max_abs_map_v_per_m, threshold_v_per_m "
+                f"SELECT id, started_utc, max_abs_reading_v_per_m, max_abs_map_v_per_m, threshold_v_per_m, uid "
                 f"FROM {SCHEMA}.surveys WHERE site_id = %s ORDER BY started_utc NULLS LAST, id", (site_id,))
             surveys = cur.fetchall()
             cur.execute(
@@ -294,7 +297,7 @@ def _build(site_name, surveys, hotspot_rows, zone_rows, zones) -> History:
     steps: list[SurveyStep] = []
     previous: set[int] = set()
     members: dict[int, list[_Spot]] = {}
-    for sid, started, max_reading, max_map, threshold in surveys:
+    for sid, started, max_reading, max_map, threshold, uid in surveys:
         sid = int(sid)
         present = {place_of[(s.survey, s.hotspot_id)] for s in spots.get(sid, [])}
         entries = []
@@ -319,7 +322,8 @@ def _build(site_name, surveys, hotspot_rows, zone_rows, zones) -> History:
         steps.append(SurveyStep(
             sid, None if started is None else started.isoformat(), max(values) if values else None,
             max_reading, float(threshold),
-            float(site_union.area) if site_union is not None else 0.0, tuple(states), tuple(entries), cleared))
+            float(site_union.area) if site_union is not None else 0.0, tuple(states), tuple(entries), cleared,
+            uid))
         previous = present
     places = []
     for number in sorted(members):

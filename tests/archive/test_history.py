@@ -110,3 +110,30 @@ def test_history_json_from_the_command_line(hall_history, capsys):
                          _place_near(hall_history["history"], "pallet rack").y_m)
     rack = next(a for a in load_site(SAMPLES / "north_hall.toml").assets if a.name == "pallet rack")
     assert near.distance(rack.geometry) < 2.0
+
+
+def test_report_gains_a_history_page_with_db(hall_history, hall_files, tmp_path, capsys):
+    import pypdfium2 as pdfium
+
+    survey = str(hall_files["north_hall_after"])
+    assert main(["report", survey, str(tmp_path / "history.pdf"), "--db", hall_history["url"]]) == 0
+    doc = pdfium.PdfDocument(tmp_path / "history.pdf")
+    try:
+        assert len(doc) == 3  # map and findings (an IDW model has no sources page), then the history
+        last = " ".join(doc[len(doc) - 1].get_textpage().get_text_range().split())
+    finally:
+        doc.close()
+    assert "North Hall: history of the site's surveys" in last
+    assert "this survey" in last and "FAIL" in last and "pass" in last
+    for word in ("new", "recurring", "cleared", "near tote stack", "near pallet rack"):
+        assert word in last, word
+    # a site the archive does not hold: one line, and no report written
+    other = tmp_path / "box"
+    other.mkdir()
+    from tests.archive.helpers import small_survey
+
+    box = small_survey(other, "Box", "r")
+    capsys.readouterr()
+    assert main(["report", str(box), str(tmp_path / "box.pdf"), "--db", hall_history["url"]]) == 2
+    assert "no site named 'Box'" in capsys.readouterr().err
+    assert not (tmp_path / "box.pdf").exists()
