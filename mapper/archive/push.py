@@ -351,14 +351,20 @@ def push(survey_path: str | Path, url: str | None) -> PushResult:
         Archive connection (libpq URL or ``PG*`` environment variables).
     """
     where = describe(url)
-    with Survey.open(survey_path) as survey:
-        content = read_content(survey)
-        with connect(url, autocommit=True) as conn:
+    with Survey.open(survey_path) as survey, connect(url, autocommit=True) as conn:
+        with conn.cursor() as cur:
+            check(cur, where)
+        # one read transaction on the survey file: the rows and the products come from the same
+        # state even while someone goes on recording into it
+        survey.conn.execute("BEGIN")
+        try:
+            content = read_content(survey)
             with conn.cursor() as cur:
-                check(cur, where)
                 cur.execute(f"SELECT id, digest FROM {SCHEMA}.surveys WHERE uid = %s", (content.uid,))
                 found = cur.fetchone()
             if found is not None and found[1] == content.digest():
                 return PushResult(int(found[0]), "unchanged", {}, survey.name)
             products = survey_products(survey)
-            return run_transaction(conn, _push_body(content, products, where))
+        finally:
+            survey.conn.execute("ROLLBACK")
+        return run_transaction(conn, _push_body(content, products, where))
