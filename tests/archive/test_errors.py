@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import shutil
 import sqlite3
 import subprocess
 import sys
@@ -34,9 +35,17 @@ def has_schema(url: str) -> bool:
         return conn.execute("SELECT 1 FROM pg_namespace WHERE nspname = %s", (SCHEMA,)).fetchone() is not None
 
 
+@pytest.fixture(scope="module")
+def box_base(tmp_path_factory):
+    return small_survey(tmp_path_factory.mktemp("errors"), "Box", "e")
+
+
 @pytest.fixture
-def box(tmp_path):
-    return small_survey(tmp_path, "Box", "e", field_model=False)
+def box(tmp_path, box_base):
+    """A fresh copy of one small survey (each test has its own archive, so the same identity is fine)."""
+    path = tmp_path / box_base.name
+    shutil.copyfile(box_base, path)
+    return path
 
 
 def test_bad_urls(capsys, box, pg_server):
