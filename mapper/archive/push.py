@@ -13,7 +13,8 @@ site and first event, none of which ever change). A push
 
 Everything is one SERIALIZABLE transaction (retried on a conflict with a concurrent push), so
 a push that is killed or loses its connection leaves nothing half written. Pushes to one site
-take a transaction-scoped advisory lock on the site's name, so they queue rather than conflict.
+queue on an advisory lock on the site's name (held by the connection, so it dies with it), so
+they follow one another rather than conflict; pushes to other sites run side by side.
 """
 
 from __future__ import annotations
@@ -27,7 +28,7 @@ import numpy as np
 import shapely
 from shapely.geometry.base import BaseGeometry
 
-from mapper.archive.connect import connect, describe, run_transaction
+from mapper.archive.connect import connect, describe, psycopg, run_transaction
 from mapper.archive.schema import SCHEMA, check
 from mapper.errors import MapperError
 from mapper.export.crs import ExportCRS, export_crs
@@ -259,7 +260,6 @@ def _push_body(content: SurveyContent, products: Products, where: str):
     stats = _survey_stats(content, products)
 
     def body(cur) -> PushResult:
-        cur.execute("SELECT pg_advisory_xact_lock(hashtext(%s))", (f"mapper_archive site {site_key(site.name)}",))
         geo = _Geo(crs, _srid(cur, crs))
         cur.execute(f"SELECT id, fingerprint, name FROM {SCHEMA}.sites WHERE name_key = %s",
                     (site_key(site.name),))
@@ -367,4 +367,17 @@ def push(survey_path: str | Path, url: str | None) -> PushResult:
             products = survey_products(survey)
         finally:
             survey.conn.execute("ROLLBACK")
-        return run_transaction(conn, _push_body(content, products, where))
+        # pushes to one site queue on a session-level advisory lock taken before the transaction
+        # starts, so each one's snapshot already sees what the one before it committed (a lock
+        # taken inside would come after the snapshot); the lock dies with the connection
+        key = f"mapper_archive site {site_key(products.site.name)}"
+        with conn.cursor() as cur:
+            cur.execute("SELECT pg_advisory_lock(hashtext(%s))", (key,))
+        try:
+            return run_transaction(conn, _push_body(content, products, where))
+        finally:
+            try:
+                with conn.cursor() as cur:
+                    cur.execute("SELECT pg_advisory_unlock(hashtext(%s))", (key,))
+            except psycopg().Error:  # the connection is gone, and the lock with it
+                pass
