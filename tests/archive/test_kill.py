@@ -121,3 +121,53 @@ def test_killed_pushes_leave_whole_surveys_or_nothing(prepared):
         assert result.status == "added"
         with psycopg.connect(url) as conn:
             assert counts(conn, result.survey_id) == expected
+
+
+def test_push_that_loses_its_connection_writes_nothing(prepared, monkeypatch, tmp_path):
+    """The server ends the pushing session deep inside its transaction (pg_terminate_backend).
+
+    The push is held at its last table: another session holds the ``rasters`` table in EXCLUSIVE
+    mode, which blocks inserts (PostgreSQL documentation, "Explicit Locking", table-level lock
+    modes), so by then it has written the survey, plan, readings ... in its transaction.
+    """
+    import threading
+
+    from mapper.errors import MapperError
+
+    url = prepared["url"]
+    path = distinct_copies(prepared["base"], tmp_path, 1, "lost")[0]
+    with Survey.open(path) as survey:
+        uid = read_content(survey).uid
+    seen = {}
+
+    def cut() -> None:
+        with psycopg.connect(url, autocommit=True) as watch:
+            deadline = time.monotonic() + 30
+            while time.monotonic() < deadline:
+                row = watch.execute(
+                    "SELECT pid, wait_event_type, query FROM pg_stat_activity WHERE application_name = "
+                    "'mapper-lost' AND wait_event_type = 'Lock'").fetchone()
+                if row:
+                    seen["query"] = row[2]
+                    seen["ended"] = watch.execute("SELECT pg_terminate_backend(%s)", (row[0],)).fetchone()[0]
+                    return
+                time.sleep(0.005)
+
+    with psycopg.connect(url) as holder:
+        holder.execute(f"LOCK TABLE {SCHEMA}.rasters IN EXCLUSIVE MODE")
+        monkeypatch.setenv("PGAPPNAME", "mapper-lost")  # the push's connection, not the holder's
+        watcher = threading.Thread(target=cut)
+        watcher.start()
+        with pytest.raises(MapperError, match="lost the connection to the archive; nothing was written"):
+            push(path, url)
+        watcher.join()
+        holder.rollback()
+    assert seen.get("ended") is True and "rasters" in seen["query"]
+    with psycopg.connect(url) as conn:
+        assert conn.execute(f"SELECT count(*) FROM {SCHEMA}.surveys WHERE uid = %s", (uid,)).fetchone()[0] == 0
+        stray = conn.execute(
+            f"SELECT count(*) FROM {SCHEMA}.readings r LEFT JOIN {SCHEMA}.surveys s ON s.id = r.survey_id "
+            "WHERE s.id IS NULL").fetchone()[0]
+        assert stray == 0
+    monkeypatch.delenv("PGAPPNAME")
+    assert push(path, url).status == "added"  # and the next push goes through whole
