@@ -166,6 +166,10 @@ def write_content(path: str | Path, content: SurveyContent) -> Path:
             os.link(temp, path)  # fails, never overwrites, when the name was taken meanwhile
         except FileExistsError:
             raise MapperError("survey file already exists; choose another name", where=str(path)) from None
+        except OSError:  # a file system without hard links (FAT, some network shares)
+            if path.exists():
+                raise MapperError("survey file already exists; choose another name", where=str(path)) from None
+            os.replace(temp, path)
     finally:
         if conn is not None:
             conn.close()
