@@ -96,8 +96,11 @@ def small_survey(folder: Path, site: str, tag: str, *, repeats: int = 1, start_d
     return path
 
 
-def distinct_copies(base: Path, folder: Path, n: int, tag: str) -> list[Path]:
+def distinct_copies(base: Path, folder: Path, n: int, tag: str, first: int = 1) -> list[Path]:
     """``n`` survey files with the rows of ``base`` but each its own creation time (so its own identity).
+
+    Copy k is created ``first + k`` seconds after ``base``; calls with ranges that do not overlap
+    give surveys distinct from each other's.
 
     Written through :func:`mapper.survey.content.write_content`, as ``mapper archive pull`` writes.
     """
@@ -112,7 +115,7 @@ def distinct_copies(base: Path, folder: Path, n: int, tag: str) -> list[Path]:
     created = datetime.fromisoformat(content.meta_dict["created_utc"])
     out = []
     for k in range(n):
-        stamp = to_utc_text(created + timedelta(seconds=k + 1))
+        stamp = to_utc_text(created + timedelta(seconds=first + k))
         meta = tuple((key, stamp if key == "created_utc" else value) for key, value in content.meta)
         out.append(write_content(folder / f"{tag}{k}.survey", replace(content, meta=meta)))
     return out

@@ -135,15 +135,16 @@ def test_push_that_loses_its_connection_writes_nothing(prepared, monkeypatch, tm
     from mapper.errors import MapperError
 
     url = prepared["url"]
-    path = distinct_copies(prepared["base"], tmp_path, 1, "lost")[0]
+    path = distinct_copies(prepared["base"], tmp_path, 1, "lost", first=TRIALS + 1)[0]
     with Survey.open(path) as survey:
         uid = read_content(survey).uid
     seen = {}
+    done = threading.Event()
 
     def cut() -> None:
         with psycopg.connect(url, autocommit=True) as watch:
             deadline = time.monotonic() + 30
-            while time.monotonic() < deadline:
+            while time.monotonic() < deadline and not done.is_set():
                 row = watch.execute(
                     "SELECT pid, wait_event_type, query FROM pg_stat_activity WHERE application_name = "
                     "'mapper-lost' AND wait_event_type = 'Lock'").fetchone()
@@ -158,9 +159,12 @@ def test_push_that_loses_its_connection_writes_nothing(prepared, monkeypatch, tm
         monkeypatch.setenv("PGAPPNAME", "mapper-lost")  # the push's connection, not the holder's
         watcher = threading.Thread(target=cut)
         watcher.start()
-        with pytest.raises(MapperError, match="lost the connection to the archive; nothing was written"):
-            push(path, url)
-        watcher.join()
+        try:
+            with pytest.raises(MapperError, match="lost the connection to the archive; nothing was written"):
+                push(path, url)
+        finally:
+            done.set()
+            watcher.join()
         holder.rollback()
     assert seen.get("ended") is True and "rasters" in seen["query"]
     with psycopg.connect(url) as conn:
