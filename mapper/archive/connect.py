@@ -24,7 +24,7 @@ APPLICATION_NAME = "mapper archive"
 MAX_ATTEMPTS = 30
 
 
-def psycopg():  # noqa: ANN201 - the module
+def psycopg():
     """The psycopg 3 module, or a one-line error saying how to install it."""
     try:
         import psycopg as module

@@ -253,10 +253,10 @@ def _write_rows(cur, survey_id: int, table: str, rows, geo: _Geo) -> int:
     return _copy(cur, table, ("survey_id", *cols), ((survey_id, *r) for r in rows))
 
 
-def _push_body(content: SurveyContent, products: Products, where: str):
+def _push_body(content: SurveyContent, digest: str, products: Products, where: str):
     site = products.site
     crs = export_crs(site)
-    uid, digest = content.uid, content.digest()
+    uid = content.uid
     stats = _survey_stats(content, products)
 
     def body(cur) -> PushResult:
@@ -359,10 +359,11 @@ def push(survey_path: str | Path, url: str | None) -> PushResult:
         survey.conn.execute("BEGIN")
         try:
             content = read_content(survey)
+            digest = content.digest()
             with conn.cursor() as cur:
                 cur.execute(f"SELECT id, digest FROM {SCHEMA}.surveys WHERE uid = %s", (content.uid,))
                 found = cur.fetchone()
-            if found is not None and found[1] == content.digest():
+            if found is not None and found[1] == digest:
                 return PushResult(int(found[0]), "unchanged", {}, survey.name)
             products = survey_products(survey)
         finally:
@@ -374,7 +375,7 @@ def push(survey_path: str | Path, url: str | None) -> PushResult:
         with conn.cursor() as cur:
             cur.execute("SELECT pg_advisory_lock(hashtext(%s))", (key,))
         try:
-            return run_transaction(conn, _push_body(content, products, where))
+            return run_transaction(conn, _push_body(content, digest, products, where))
         finally:
             try:
                 with conn.cursor() as cur:

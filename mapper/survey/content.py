@@ -86,15 +86,9 @@ class SurveyContent:
         h = hashlib.sha256()
         h.update(json.dumps([list(self.meta), self.site_json, self.site_text]).encode("utf-8"))
         for name in COLUMNS:
-            for row in self.tables[name]:
-                h.update(name.encode())
-                h.update(_row_text(row).encode("utf-8"))
+            rows = [[v.hex() if isinstance(v, bytes) else v for v in row] for row in self.tables[name]]
+            h.update(json.dumps([name, rows]).encode("utf-8"))
         return h.hexdigest()
-
-
-def _row_text(row: tuple) -> str:
-    return json.dumps([v.hex() if isinstance(v, bytes | bytearray | memoryview) else v for v in
-                       (bytes(x) if isinstance(x, memoryview) else x for x in row)])
 
 
 def read_content(survey: Survey) -> SurveyContent:
