@@ -1,9 +1,10 @@
 # Two entry points: `make demo` and `make test`. Each creates .venv on first use and installs the
-# project (with its test extra) from pyproject.toml.
+# project from pyproject.toml: the tool alone for the demo, with its test extra for the tests.
 PYTHON ?= python3
 VENV := .venv
 BIN := $(VENV)/bin
 STAMP := $(VENV)/.installed
+APP_STAMP := $(VENV)/.installed-app
 
 .PHONY: demo test lint bench clean
 
@@ -13,7 +14,13 @@ $(STAMP): pyproject.toml
 	$(BIN)/python -m pip install --quiet -e ".[test]"
 	touch $(STAMP)
 
-demo: $(STAMP)
+$(APP_STAMP): pyproject.toml
+	test -x $(BIN)/python || $(PYTHON) -m venv $(VENV)
+	$(BIN)/python -m pip install --quiet --upgrade pip
+	$(BIN)/python -m pip install --quiet -e .
+	touch $(APP_STAMP)
+
+demo: $(APP_STAMP)
 	$(BIN)/mapper demo --out demo_out
 
 test: $(STAMP)

@@ -20,7 +20,7 @@ Figures:
 * Enter to frame written: from sending the Enter key to the first frame Textual writes to the
   terminal driver after the handler has finished (``App._display``), i.e. the status line
   showing "saved" is on the screen.
-* refit: the worker's :func:`mapper.app.live.refit` (field engine fast path + hotspots +
+* refit: the worker's :func:`mapper.workflow.live_products` (field engine fast path + hotspots +
   suggestions) on 2 000 readings; redraw: applying the result on the UI thread.
 
 Readings are invented: a charged conveyor modelled as a Gaussian ridge of 6 kV/m plus white
@@ -43,7 +43,7 @@ import shapely
 ROOT = Path(__file__).resolve().parent.parent
 sys.path.insert(0, str(ROOT))
 
-from mapper.app import live  # noqa: E402
+from mapper import workflow as live  # noqa: E402
 from mapper.app.main_screen import MainScreen  # noqa: E402
 from mapper.app.walk_app import WalkApp  # noqa: E402
 from mapper.survey.create import create_survey  # noqa: E402
@@ -157,7 +157,7 @@ async def refit_redraw(path: Path, repeats: int) -> dict:
         result = None
         for _ in range(repeats):
             t0 = time.perf_counter()
-            result = live.refit(readings, s.site, s.threshold_v_per_m, s.points)
+            result = live.live_products(readings, s.site, s.threshold_v_per_m, s.points)
             refit_s.append(time.perf_counter() - t0)
             main.live = None
             t0 = time.perf_counter()

@@ -114,7 +114,7 @@ def main_benchmark() -> None:
             dense = dense_hall(folder)
             with Survey.open(dense) as survey:
                 n = survey.count_rows()
-            from mapper.export.pipeline import survey_products
+            from mapper.workflow import survey_products
 
             with Survey.open(dense) as survey:
                 t_products, _ = timed(survey_products, survey)

@@ -5,6 +5,7 @@ from __future__ import annotations
 import contextlib
 import errno
 import os
+import resource
 from collections.abc import Iterator
 from pathlib import Path
 
@@ -70,8 +71,20 @@ def atomic_path(path: str | Path) -> Iterator[Path]:
         _fsync(tmp)
         os.replace(tmp, path)
     except OSError as exc:
+        cause = space_problem(tmp) if exc.errno in (errno.ENOSPC, errno.EFBIG) else None
         _remove(tmp)
-        raise MapperError(f"cannot write: {describe_os_error(exc)}", where=str(path)) from None
+        raise MapperError(f"cannot write: {cause or describe_os_error(exc)}", where=str(path)) from None
+    except MapperError:
+        _remove(tmp)
+        raise
+    except Exception:
+        # a library that writes through its own I/O (GDAL, SQLite, a PDF or PNG stream) reports a
+        # full disk in its own words ("Failed to commit transaction", "inconsistent stream state")
+        cause = space_problem(tmp)
+        _remove(tmp)
+        if cause is None:
+            raise
+        raise MapperError(f"cannot write: {cause}", where=str(path)) from None
     except BaseException:
         _remove(tmp)
         raise
@@ -84,6 +97,40 @@ def _remove(tmp: Path) -> None:
             p.unlink()
 
 
+#: Free space below which a failed write is put down to a full device, bytes (our own choice).
+LOW_SPACE_BYTES = 1 << 20
+
+
+def space_problem(path: str | Path) -> str | None:
+    """Why writing ``path`` (and files beside it) may have failed for lack of room, or ``None``.
+
+    Looks at the process's file-size limit (``ulimit -f``) against the sizes of ``path`` and its
+    SQLite companions, then at the free space of the device holding it. Call it right after a
+    write failed, before removing what was written, so the device is as full as the write left it.
+    """
+    path = Path(path)
+    soft, _ = resource.getrlimit(resource.RLIMIT_FSIZE)
+    if soft != resource.RLIM_INFINITY:
+        sizes = [_size(p) for p in (path, *(path.with_name(path.name + s) for s in ("-journal", "-wal", "-shm")))]
+        if max(sizes) + LOW_SPACE_BYTES >= soft:
+            return f"file too large: this process may write files of at most {soft} bytes (ulimit -f)"
+    try:
+        stat = os.statvfs(path.parent)
+    except OSError:
+        return None
+    free = stat.f_bavail * stat.f_frsize
+    if free < LOW_SPACE_BYTES:
+        return f"no space left on the device ({free // 1024} KiB free)"
+    return None
+
+
+def _size(path: Path) -> int:
+    try:
+        return path.stat().st_size
+    except OSError:
+        return 0
+
+
 def describe_os_error(exc: OSError) -> str:
     """Say in a few words what an ``OSError`` means for an output (no space, too large, ...)."""
     names = {errno.ENOSPC: "no space left on the device", errno.EFBIG: "file too large for this system",
@@ -92,4 +139,4 @@ def describe_os_error(exc: OSError) -> str:
     return names.get(exc.errno, exc.strerror or str(exc))
 
 
-__all__ = ["PART_MARK", "atomic_path", "clean_leftovers", "describe_os_error"]
+__all__ = ["PART_MARK", "atomic_path", "clean_leftovers", "describe_os_error", "space_problem"]

@@ -35,6 +35,8 @@ def run_demo(out: Path, samples: Path = SAMPLES) -> Iterator[str]:
             stale.unlink(missing_ok=True)
     steps = [
         ["new", str(survey), "--site", str(site), "--spacing", "2", "--unit", "kV/m", "--operator", "demo"],
+        ["meter", "add", str(survey), "meter1", "--description", "sample handheld field meter", "--serial",
+         "NH-0001", "--calibrated", "2026-05-12", "--due", "2027-05-12"],
         ["import", str(survey), str(samples / "north_hall_conditions.csv")],
         ["import", str(survey), str(samples / "north_hall_readings.csv")],
         ["info", str(survey)],
@@ -44,6 +46,8 @@ def run_demo(out: Path, samples: Path = SAMPLES) -> Iterator[str]:
         ["report", str(survey), str(out / "north_hall.pdf"), "--png"],
         # a week later, after an ioniser bar and a grounded brush were fitted to belt 1
         ["new", str(after), "--site", str(site), "--spacing", "2", "--unit", "kV/m", "--operator", "demo"],
+        ["meter", "add", str(after), "meter1", "--description", "sample handheld field meter", "--serial",
+         "NH-0001", "--calibrated", "2026-05-12", "--due", "2027-05-12"],
         ["import", str(after), str(samples / "north_hall_after_conditions.csv")],
         ["import", str(after), str(samples / "north_hall_after_readings.csv")],
         ["grid", str(after)],

@@ -251,6 +251,34 @@ def plain_number(value: float, digits: int = 4) -> str:
     return "0" if text in ("-0", "") else text
 
 
+_V_PER_M_VALUE = re.compile(r"(?<![\w.])(-?\d+(?:\.\d+)?(?:e[-+]?\d+)?) V/m\b")
+_OTHERS = re.compile(r"\(others: ([^)]*?) V/m\)")
+
+
+def field_text_in(text: str, unit: str, digits: int = 4) -> str:
+    """A sentence the engine wrote in V/m, with its field values in a display unit.
+
+    ``"RMSE 85.74 V/m (others: kriging 1411, rbf 1199 V/m)"`` in kV/m becomes
+    ``"RMSE 0.08574 kV/m (others: kriging 1.411, rbf 1.199 kV/m)"``.
+    """
+    unit = canonical_unit(unit)
+    if unit == "V/m":
+        return text
+
+    def others(m: re.Match) -> str:
+        parts = []
+        for part in m.group(1).split(", "):
+            name, _, number = part.rpartition(" ")
+            try:
+                parts.append(f"{name} {plain_number(from_si(float(number), unit), digits)}")
+            except ValueError:
+                parts.append(part)
+        return f"(others: {', '.join(parts)} {unit})"
+
+    text = _OTHERS.sub(others, text)
+    return _V_PER_M_VALUE.sub(lambda m: format_field(float(m.group(1)), unit, digits), text)
+
+
 def format_field(value_v_per_m: float, unit: str, digits: int = 4) -> str:
     """Format a V/m value in a display unit, e.g. ``"4.921 kV/m"`` (fixed-point, no exponent)."""
     unit = canonical_unit(unit)

@@ -10,29 +10,10 @@ from textual.binding import Binding
 from textual.screen import Screen
 from textual.widgets import DataTable, Footer, Static
 
+from mapper.presentation import hotspot_table
 
-def _get(h, name: str, default=None):
-    return h.get(name, default) if isinstance(h, dict) else getattr(h, name, default)
-
-
-def hotspot_rows(hotspots: Sequence, fmt: Callable[[float], str], unit: str) -> list[tuple[str, ...]]:
-    """Table rows: id, sign, status, peak, area, P(exceed), nearest asset, zones."""
-    rows = []
-    for h in hotspots:
-        area = _get(h, "area_m2")
-        p = _get(h, "p_exceed_max")
-        asset, dist = _get(h, "nearest_asset"), _get(h, "nearest_asset_m")
-        rows.append((
-            str(_get(h, "id")),
-            "+" if _get(h, "polarity") == "positive" else "−",
-            str(_get(h, "status", "-")),
-            fmt(_get(h, "peak_v_per_m")),
-            f"{area:.1f} m²" if area is not None else "-",
-            f"{p:.2f}" if p is not None else "-",
-            f"{asset} ({dist:.1f} m)" if asset else "-",
-            ", ".join(_get(h, "zones", ()) or ()) or "-",
-        ))
-    return rows
+#: Columns of the app's hotspot table (keys of :data:`mapper.presentation.HOTSPOT_COLUMNS`).
+COLUMNS = ("id", "pol", "status", "peak", "area", "p_max", "nearest", "zones")
 
 
 class HotspotScreen(Screen[tuple[float, float] | None]):
@@ -81,18 +62,19 @@ class HotspotScreen(Screen[tuple[float, float] | None]):
 
     def on_mount(self) -> None:
         table = self.query_one(DataTable)
-        table.add_columns("id", "sign", "status", "peak", "area", "P(exceed)", "nearest asset", "zones")
-        for row in hotspot_rows(self.hotspots, self.fmt, self.unit):
+        header, rows = hotspot_table(self.hotspots, self.unit, COLUMNS, digits=3)
+        table.add_columns(*header)
+        for row in rows:
             table.add_row(*row)
         table.focus()
 
     @on(DataTable.RowSelected)
     def _go(self, event: DataTable.RowSelected) -> None:
         h = self.hotspots[event.cursor_row]
-        self.dismiss((float(_get(h, "peak_x")), float(_get(h, "peak_y"))))
+        self.dismiss((float(h.peak_x), float(h.peak_y)))
 
     def action_close(self) -> None:
         self.dismiss(None)
 
 
-__all__ = ["HotspotScreen", "hotspot_rows"]
+__all__ = ["HotspotScreen"]

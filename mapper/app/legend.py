@@ -8,10 +8,11 @@ from rich.style import Style
 from rich.text import Text
 from textual.widgets import Static
 
-from mapper.app.palette import FEATURE_COLOURS, diverging, sequential
+from mapper.app.palette import FEATURE_COLOURS, sequential
+from mapper.features import colour_scale as cs
 from mapper.units import format_field
 
-#: Width of the colour ramp, cells.
+#: Width of the uncertainty ramp, cells.
 RAMP_CELLS = 21
 
 
@@ -20,45 +21,50 @@ def _swatch(text: Text, colour: str, label: str) -> None:
     text.append(label)
 
 
+def _block(text: Text, colour: str, width: int = 1) -> None:
+    text.append("█" * width, Style(color=Color.parse(colour)))
+
+
 def legend_text(layer: str, scale_v_per_m: float, unit: str, threshold_v_per_m: float) -> Text:
-    """Legend lines for a map layer.
+    """Legend lines for a map layer: every colour the map can show, with its meaning.
 
     Parameters
     ----------
     layer : str
         ``readings``, ``estimate`` or ``std``.
     scale_v_per_m : float
-        Full-colour magnitude, V/m.
+        Full-colour magnitude of the ``std`` layer, V/m (unused for the signed layers, whose
+        colours are the action-level scale of :mod:`mapper.features.colour_scale`).
     unit : str
         Display unit. Signed values are in the survey's sign convention (the map colours them
         the same way), so red is positive as the meter reads.
     threshold_v_per_m : float
-        Action level, V/m (marked on the ramp of the signed layers).
+        Action level, V/m: the signed layers' band edges are fixed multiples of it.
     """
     text = Text()
     if layer == "std":
         values = np.linspace(0.0, scale_v_per_m, RAMP_CELLS)
-        colours = sequential(values, scale_v_per_m)
+        for c in sequential(values, scale_v_per_m):
+            text.append("█", Style(color=Color.from_rgb(*map(int, c))))
         left, right = "0", format_field(scale_v_per_m, unit, 3)
+        text.append(f"\n{left:<{RAMP_CELLS // 2}}{right:>{RAMP_CELLS - RAMP_CELLS // 2}}\n")
+        text.append("uncertainty of a new reading\n")
     else:
-        values = np.linspace(-scale_v_per_m, scale_v_per_m, RAMP_CELLS)
-        colours = diverging(values, scale_v_per_m)
-        left = format_field(-scale_v_per_m, unit, 3)
-        right = format_field(scale_v_per_m, unit, 3)
-    for c in colours:
-        text.append("█", Style(color=Color.from_rgb(*map(int, c))))
-    text.append("\n")
-    if layer == "std":
-        text.append(f"{left:<{RAMP_CELLS // 2}}{right:>{RAMP_CELLS - RAMP_CELLS // 2}}\n")
-    else:
-        mid = RAMP_CELLS // 2
-        text.append(f"{left:<{mid}}0{right:>{RAMP_CELLS - mid - 1}}\n")
-        if threshold_v_per_m <= scale_v_per_m:  # the map's scale is never below the threshold
-            k = int(round(mid * threshold_v_per_m / scale_v_per_m))
-            marks = [" "] * RAMP_CELLS
-            marks[mid - k] = "▲"
-            marks[mid + k] = "▲"
-            text.append("".join(marks) + "\n")
+        rows = cs.legend_rows(threshold_v_per_m, unit)  # most positive first
+        n = len(cs.EDGE_MULTIPLES)
+        for colour, _ in reversed(rows):
+            _block(text, colour, 2)
+        width = 2 * len(rows)
+        top = format_field(cs.EDGE_MULTIPLES[-1] * threshold_v_per_m, unit, 3)
+        mid = width // 2
+        text.append(f"\n{'-' + top:<{mid - 1}}0{top:>{width - mid}}\n")
+        marks = [" "] * width
+        k = cs.ACTION_BAND
+        marks[2 * (n - k)] = "▲"
+        marks[2 * (n + k)] = "▲"
+        text.append("".join(marks) + " action level\n")
+        multiples = ", ".join(f"{m:g}" for m in cs.EDGE_MULTIPLES)
+        text.append(f"edges ±{multiples} × {format_field(threshold_v_per_m, unit, 4)}\n")
     _swatch(text, FEATURE_COLOURS["current"], "here  ")
     _swatch(text, FEATURE_COLOURS["unvisited"], "to do  ")
     _swatch(text, FEATURE_COLOURS["suggested"], "suggested\n")
@@ -69,7 +75,9 @@ def legend_text(layer: str, scale_v_per_m: float, unit: str, threshold_v_per_m: 
         _swatch(text, FEATURE_COLOURS["free"], "free position\n")
     _swatch(text, FEATURE_COLOURS["outline"], "outline ")
     _swatch(text, FEATURE_COLOURS["asset"], "asset ")
-    _swatch(text, FEATURE_COLOURS["zone"], "zone")
+    _swatch(text, FEATURE_COLOURS["zone"], "zone\n")
+    _swatch(text, FEATURE_COLOURS["inside"], "site, not mapped yet ")
+    _swatch(text, FEATURE_COLOURS["outside"], "outside")
     return text
 
 

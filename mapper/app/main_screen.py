@@ -20,17 +20,19 @@ from mapper.app.help_screen import HelpScreen
 from mapper.app.hotspot_screen import HotspotScreen
 from mapper.app.keys import bindings
 from mapper.app.legend import Legend, legend_text
-from mapper.app.live import MIN_POSITIONS_FOR_ESTIMATE, LiveResult, refit
 from mapper.app.map_view import MapView
-from mapper.app.palette import FEATURE_COLOURS, diverging, hex_rgb
+from mapper.app.palette import FEATURE_COLOURS, hex_rgb
 from mapper.app.raster import LAYER_TITLES, LAYERS, Markers
 from mapper.app.session import DRY_AIR_RH_PERCENT, WalkSession, parse_conditions, parse_xy
 from mapper.corrections.pipeline import load_meters
 from mapper.errors import MapperError
+from mapper.features.colour_scale import colours_rgb
 from mapper.nice import nice_ceiling
 from mapper.readings.serial_meter import MeterLine, SerialMeterReader
 from mapper.survey.store import utc_now
 from mapper.units import FIELD_UNITS, format_field, from_si
+from mapper.wording import plural
+from mapper.workflow import MIN_FIELD_POSITIONS, LiveResult, live_products
 
 #: How often the clock and the conditions reminder are checked, seconds.
 TICK_S = 1.0
@@ -122,8 +124,9 @@ class MainScreen(Screen):
         s = self.session
         n = len(s.field_readings())
         if n == 0:
-            return f"new walk, start at {s.current.label}"
-        return f"{n} readings, {len(s.visited)}/{len(s.points)} points done, resuming at {s.current.label}"
+            return f"new walk, start at point {s.current.label}"
+        return (f"{plural(n, 'reading')}, {len(s.visited)}/{len(s.points)} points done, resuming at point "
+                f"{s.current.label}")
 
     # ------------------------------------------------------------ refreshing
     def refresh_all(self) -> None:
@@ -195,7 +198,7 @@ class MainScreen(Screen):
             since = (f" · survey {_hms(age)}" if 0 <= age < 86400
                      else f" · since {first.astimezone():%d %b}")
         self._show("#progress-text",
-            f"done {done}/{total} · {n} readings\nsession {_hms(session_s)}{since}"
+            f"done {done}/{total} · {plural(n, 'reading')}\nsession {_hms(session_s)}{since}"
         )
         self.query_one("#progress", ProgressBar).update(total=total, progress=done)
 
@@ -207,7 +210,7 @@ class MainScreen(Screen):
             text = f"hotspots (▲ ±{level}): fitting…"
         elif live.grid is None:
             text = (f"hotspots (▲ ±{level}): {live.hotspot_count or '-'}\n"
-                    f"map after {MIN_POSITIONS_FOR_ESTIMATE} readings")
+                    f"map after {MIN_FIELD_POSITIONS} readings")
         else:
             text = f"hotspots (▲ ±{level}): {live.hotspot_count}"
             if live.suggestions:
@@ -247,26 +250,18 @@ class MainScreen(Screen):
         self.query_one("#entry-row").set_class(self.armed != "field", "armed")
 
     def scale(self) -> float:
-        """Full-colour magnitude for the map and legend, V/m (a round number)."""
+        """What the map's colours are scaled to, V/m.
+
+        The signed layers use one fixed scale tied to the action level (the same colours as the
+        report and the GeoPackage styles, whatever has been read so far); the uncertainty layer
+        spans its values (a round number above the largest).
+        """
         s = self.session
-        values = [abs(r.value_v_per_m) for r in s.field_readings()]
-        biggest = max(values, default=0.0)
         grid = self.live.grid if self.live else None
-        if self.map_layer == "std":
-            if grid is None:
-                return 1.0
+        if self.map_layer == "std" and grid is not None:
             std = np.asarray(grid.std, float)
             return nice_ceiling(float(np.nanmax(std))) if np.isfinite(std).any() else 1.0
-        if grid is not None and self.map_layer == "estimate":
-            est = np.abs(np.asarray(grid.estimate, float))
-            est = est[np.isfinite(est)]
-            if est.size:
-                # A 98th percentile keeps one extreme cell from washing out the rest; the
-                # threshold stays on the ramp so exceedances read as full colour.
-                biggest = float(np.percentile(est, 98))
-        elif values:
-            biggest = float(np.percentile(values, 98))
-        return nice_ceiling(max(biggest, s.threshold_v_per_m))
+        return s.threshold_v_per_m
 
     def _draw_map(self) -> None:
         s = self.session
@@ -303,14 +298,14 @@ class MainScreen(Screen):
         if done.any():
             if layer == "readings":
                 values = np.array([means[p.label] for p, d in zip(s.points, done, strict=True) if d])
-                rgb[done] = diverging(sign * values, scale)
+                rgb[done] = colours_rgb(sign * values, s.threshold_v_per_m)
             else:
                 rgb[done] = hex_rgb(FEATURE_COLOURS["visited"])
         free = [r for r in s.field_readings() if r.point is None]
         if free:
             fxy = np.array([(r.x, r.y) for r in free], float)
             if layer == "readings":
-                frgb = diverging(sign * np.array([r.value_v_per_m for r in free]), scale)
+                frgb = colours_rgb(sign * np.array([r.value_v_per_m for r in free]), s.threshold_v_per_m)
             else:
                 frgb = np.tile(np.array(hex_rgb(FEATURE_COLOURS["free"]), np.uint8), (len(free), 1))
             xy, rgb = np.vstack([xy, fxy]), np.vstack([rgb, frgb])
@@ -358,16 +353,21 @@ class MainScreen(Screen):
     def _refit_worker(self, readings: list, threshold_v_per_m: float, meters: dict) -> None:
         worker = get_current_worker()
         s = self.session
-        result = refit(
-            readings, s.site, threshold_v_per_m, s.points, cancelled=lambda: worker.is_cancelled, meters=meters
+        result = live_products(
+            readings, s.site, threshold_v_per_m, s.points, cancelled=lambda: worker.is_cancelled, meters=meters,
+            unit=s.display_unit,
         )
         if result is not None and not worker.is_cancelled:
             self.app.call_from_thread(self._apply_live, result)
 
     def _apply_live(self, result: LiveResult) -> None:
+        old = self.live.notes if self.live is not None else ()
         self.live = result
         self._hotspot_line()
         self._draw_map()
+        for note in result.notes:
+            if note not in old:  # say each once, not after every refit
+                self.set_status(note, error=True)
 
     # ------------------------------------------------------------- live meter
     @work(thread=True, exclusive=True, group="meter", description="serial meter")
@@ -471,7 +471,7 @@ class MainScreen(Screen):
         else:
             target = s.neighbour(direction)
             if target is None:
-                self.set_status(f"no planned point {direction} of {s.current.label}")
+                self.set_status(f"no planned point {direction} of point {s.current.label}")
                 return
             s.go(target)
             self._remember()
@@ -527,8 +527,8 @@ class MainScreen(Screen):
     def action_free(self) -> None:
         s = self.session
         if s.free_xy is not None:
-            s.go(s.nearest_point(*s.free_xy))
-            self.set_status(f"back on the grid at {s.current.label}")
+            s.go(s.current)  # back where the walk order was left, not to the nearest point
+            self.set_status(f"back on the grid at point {s.current.label}")
             self._moved()
             return
         x, y = s.position
@@ -716,7 +716,7 @@ class MainScreen(Screen):
             if peak is not None:
                 s.go(s.nearest_point(*peak))
                 self._remember()
-                self.set_status(f"at {s.current.label}, nearest planned point to the hotspot peak")
+                self.set_status(f"at point {s.current.label}, the planned point nearest the hotspot peak")
             self.refresh_all()
             self.query_one("#entry", EntryLine).focus()
 

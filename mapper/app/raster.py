@@ -13,7 +13,8 @@ from dataclasses import dataclass
 import numpy as np
 import shapely
 
-from mapper.app.palette import FEATURE_COLOURS, diverging, hex_rgb, sequential
+from mapper.app.palette import FEATURE_COLOURS, hex_rgb, sequential
+from mapper.features.colour_scale import colours_rgb
 from mapper.site.model import Site
 
 #: Map layers the surveyor switches between.
@@ -174,12 +175,14 @@ def compose(
     layers : SiteLayers
         Rasterised site features.
     layer : str
-        ``readings`` (site grey, points coloured by their readings), ``estimate`` (diverging
-        colours of the field) or ``std`` (sequential colours of the standard deviation).
+        ``readings`` (site grey, points coloured by their readings), ``estimate`` (the field on
+        the action-level scale of :mod:`mapper.features.colour_scale`) or ``std`` (sequential
+        colours of the standard deviation).
     field_values : ndarray or None
         Per-pixel estimate or std, V/m (from :func:`sample_grid`), for the field layers.
     scale : float
-        Full-colour magnitude, V/m.
+        ``estimate``: the action level the colour bands are tied to, V/m; ``std``: the
+        full-colour magnitude, V/m.
     markers : Markers
         Planned points and free-position readings (later ones drawn on top).
     current : (x, y) or None
@@ -196,7 +199,7 @@ def compose(
     img[layers.inside] = hex_rgb(FEATURE_COLOURS["inside"])
     if layer != "readings" and field_values is not None:
         ok = layers.inside & np.isfinite(field_values)
-        colours = diverging(field_values, scale) if layer == "estimate" else sequential(field_values, scale)
+        colours = colours_rgb(field_values, scale) if layer == "estimate" else sequential(field_values, scale)
         img[ok] = colours[ok]
     img[layers.zones] = hex_rgb(FEATURE_COLOURS["zone"])
     img[layers.assets] = hex_rgb(FEATURE_COLOURS["asset"])

@@ -17,8 +17,8 @@ import shapely
 
 from mapper.errors import MapperError
 from mapper.plan.grid import PlanPoint
-from mapper.readings.model import Conditions, Reading
-from mapper.survey.store import NewReading, Survey, utc_now
+from mapper.readings.model import DOUBTFUL_FLAG, Conditions, NewReading, Reading
+from mapper.survey.store import Survey, utc_now
 from mapper.units import canonical_unit, format_field, parse_field, parse_number, to_physics_sign
 
 #: Survey meta key holding the label of the point the surveyor stands at.
@@ -33,8 +33,6 @@ CONDITIONS_EVERY = timedelta(minutes=30)
 DIRECTIONS = {"up": (1, 0), "down": (-1, 0), "left": (0, -1), "right": (0, 1)}
 #: Arrows for eight compass sectors of the map (x right, y up), starting at +x, counter-clockwise.
 _ARROWS = ("→", "↗", "↑", "↖", "←", "↙", "↓", "↘")
-#: Flag set by the note form's "doubtful" box.
-DOUBTFUL_FLAG = "doubtful"
 
 
 @dataclass(frozen=True)
@@ -217,7 +215,7 @@ class WalkSession:
         """The current place in words: a label, or a free position."""
         if self.free_xy is not None:
             return f"free position ({self.free_xy[0]:.2f}, {self.free_xy[1]:.2f}) m"
-        return self.current.label
+        return f"point {self.current.label}"
 
     def next_unvisited(self, after: PlanPoint | None = None, step: int = 1) -> PlanPoint | None:
         """The next (``step=1``) or previous (``step=-1``) unvisited point in walking order.
@@ -282,11 +280,8 @@ class WalkSession:
     def free(self, x: float, y: float) -> tuple[float, float]:
         """Take the next readings at an off-grid position inside the site (metres)."""
         if not self.outline.covers(shapely.Point(x, y)):
-            minx, miny, maxx, maxy = self.outline.bounds
-            raise MapperError(
-                f"position ({x:g}, {y:g}) m is outside the site outline "
-                f"(x {minx:g}..{maxx:g} m, y {miny:g}..{maxy:g} m)"
-            )
+            beyond = self.outline.distance(shapely.Point(x, y))
+            raise MapperError(f"position ({x:g}, {y:g}) m is outside the site outline ({beyond:.2f} m beyond it)")
         self.free_xy = (float(x), float(y))
         return self.free_xy
 
@@ -467,8 +462,8 @@ class WalkSession:
         return format_field(to_physics_sign(value_v_per_m, self.sign_convention), self.display_unit)
 
     def describe(self, r: Reading) -> str:
-        """``A7 = 2.1 kV/m`` as typed (kind named unless a field reading)."""
-        where = r.point or f"({r.x:.2f}, {r.y:.2f}) m"
+        """``point A7 = 2.1 kV/m`` as typed (kind named unless a field reading)."""
+        where = f"point {r.point}" if r.point else f"({r.x:.2f}, {r.y:.2f}) m"
         kind = "" if r.kind == "field" else f"{r.kind} "
         return f"{kind}{where} = {r.entered_value:g} {r.entered_unit}"
 

@@ -6,7 +6,7 @@ site and first event, none of which ever change). A push
 - of a survey the archive does not hold stores all of it: its site (once per site name, with
   zones and assets), plan, meta, meters, every reading row with its superseding history,
   condition notes, the event log, stored field models, and the products of
-  :func:`~mapper.export.pipeline.survey_products` (hotspots, sources, zone results, raster);
+  :func:`~mapper.workflow.survey_products` (hotspots, sources, zone results, raster);
 - of a survey whose content digest equals the archived one changes nothing, not even a time;
 - of a survey that gained rows adds the new rows only, after checking that every archived row
   is still the same in the file; meta, meters and the derived products are brought up to date.
@@ -32,7 +32,7 @@ from mapper.archive.connect import connect, describe, psycopg, run_transaction
 from mapper.archive.schema import SCHEMA, check
 from mapper.errors import MapperError
 from mapper.export.crs import ExportCRS, export_crs
-from mapper.export.pipeline import Products, survey_products
+from mapper.workflow import Products, survey_products
 from mapper.features.sources import source_records
 from mapper.field.storage import field_to_bytes
 from mapper.site.model import Site

@@ -12,6 +12,7 @@ from __future__ import annotations
 import argparse
 import json
 
+from mapper.cli.commands import summary
 from mapper.cli.common import fmt, say, table, warn
 
 DB_HELP = ("archive database: libpq URL such as postgresql://user@host/dbname (default: the PG* "
@@ -21,7 +22,7 @@ DB_HELP = ("archive database: libpq URL such as postgresql://user@host/dbname (d
 def register(sub) -> None:
     p = sub.add_parser(
         "archive",
-        help="the shared survey archive on PostgreSQL/PostGIS (init, push, list, pull, history)",
+        help=summary("archive"),
         description="Keep many sites' surveys in one PostgreSQL/PostGIS database that a desktop GIS "
         "can read; the survey file stays the offline field copy.",
     )

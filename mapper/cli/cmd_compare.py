@@ -2,7 +2,9 @@
 
 Prints what happened to each hotspot (appeared, cleared, grew, shrank, unchanged) and a summary,
 and writes a GeoPackage with the difference grid (raster ``difference``, after - before in V/m),
-its bands, both surveys' hotspots, the changes and the common region.
+its bands, both surveys' hotspots, the changes and the common region, and a printable PDF with the
+before, after and difference maps on one scale, the changes and the cautions (``--png`` for the
+page as an image).
 """
 
 from __future__ import annotations
@@ -12,19 +14,21 @@ from pathlib import Path
 
 import numpy as np
 
-from mapper.cli.common import fmt, say, table, threshold_arg, warn
+from mapper.cli.commands import summary
+from mapper.cli.common import check_output, fmt, say, table, threshold_arg, warn
+from mapper.cli.progress import working
 from mapper.errors import MapperError
-from mapper.export.pipeline import survey_file_products
 from mapper.features import compare_fields
 from mapper.features.cautions import CAUTIONS
+from mapper.workflow import survey_file_products
 
 
 def register(sub) -> None:
     p = sub.add_parser(
         "compare",
-        help="compare two surveys of one site (before / after a change)",
+        help=summary('compare'),
         description="Difference grid (after - before) and hotspot changes between two surveys "
-        "of the same site, written to a GeoPackage.",
+        "of the same site, written to a GeoPackage and a printable PDF.",
     )
     p.add_argument("before", help="survey file before the change")
     p.add_argument("after", help="survey file after the change")
@@ -35,6 +39,10 @@ def register(sub) -> None:
         metavar="Q",
         help="action level with unit for both surveys (default: the first survey's own)",
     )
+    p.add_argument("--pdf", metavar="FILE", default=None,
+                   help="printable comparison to write (default: OUT with .pdf)")
+    p.add_argument("--png", nargs="?", const="", default=None, metavar="FILE",
+                   help="also write the comparison page as PNG (default: the PDF with .png)")
     p.add_argument("--json", action="store_true", help="print JSON instead of text")
     p.set_defaults(func=run)
 
@@ -45,8 +53,16 @@ def run(args) -> int:
         raise MapperError(f"output {out} must end in .gpkg (a GeoPackage)", where="--out")
     if not out.parent.is_dir():
         raise MapperError(f"folder {out.parent} of the output does not exist", where="--out")
-    before = survey_file_products(args.before, args.threshold).require_field()
-    after = survey_file_products(args.after, args.threshold).require_field()
+    pdf = Path(args.pdf) if args.pdf else out.with_suffix(".pdf")
+    check_output(str(pdf), ".pdf")
+    png = None if args.png is None else (Path(args.png) if args.png else pdf.with_suffix(".png"))
+    if png is not None:
+        check_output(str(png), ".png")
+    with working("compare") as step:
+        step("before")
+        before = survey_file_products(args.before, args.threshold).require_field()
+        step("after")
+        after = survey_file_products(args.after, args.threshold).require_field()
     threshold = before.threshold_v_per_m
     unit = before.display_unit
     messages = [f"{args.before}: {m}" for m in before.warnings]
@@ -70,8 +86,13 @@ def run(args) -> int:
         RASTER,
         write_comparison_gpkg,
     )
+    from mapper.export.compare_report import write_comparison_report
 
-    write_comparison_gpkg(out, cmp, before.site, unit)
+    with working("compare") as step:
+        step("writing the GeoPackage")
+        write_comparison_gpkg(out, cmp, before.site, unit)
+        step("drawing the comparison")
+        printed = write_comparison_report(cmp, before, after, pdf, png_path=png)
     if args.json:
         say(
             json.dumps(
@@ -79,6 +100,8 @@ def run(args) -> int:
                     "before": before.name,
                     "after": after.name,
                     "out": str(out),
+                    "pdf": str(printed.pdf),
+                    "png": None if printed.png is None else str(printed.png),
                     "summary": cmp.summary.to_dict(),
                     "changes": [c.to_dict() for c in cmp.changes],
                     "warnings": messages,
@@ -156,6 +179,9 @@ def run(args) -> int:
         f"{fmt(s.mean_abs_difference_v_per_m, unit)}, {rise}, {fall}"
     )
     say(f"wrote      {out} (raster '{RASTER}', layers {', '.join(LAYERS)})")
+    say(f"wrote      {printed.pdf} (before, after and difference maps, changes, cautions)")
+    if printed.png is not None:
+        say(f"wrote      {printed.png} (the comparison page)")
     say("")
     say("Cautions:")
     for c in CAUTIONS:

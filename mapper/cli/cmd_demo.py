@@ -4,12 +4,13 @@ from __future__ import annotations
 
 from pathlib import Path
 
+from mapper.cli.commands import summary
 from mapper.cli.common import say
 from mapper.demo import run_demo
 
 
 def register(sub) -> None:
-    p = sub.add_parser("demo", help="run everything on the bundled indoor sample site")
+    p = sub.add_parser("demo", help=summary('demo'))
     p.add_argument("--out", default="demo_out", help="output folder (default demo_out)")
     p.set_defaults(func=run)
 

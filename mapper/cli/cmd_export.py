@@ -2,20 +2,18 @@
 
 from __future__ import annotations
 
-from pathlib import Path
-
-from mapper.cli.common import positive_float, print_notes, say, threshold_arg
-from mapper.errors import MapperError
-from mapper.export.pipeline import survey_products
+from mapper.cli.commands import summary
+from mapper.cli.common import check_output, positive_float, print_notes, say, threshold_arg
+from mapper.cli.progress import working
 from mapper.field.build import METHODS
 from mapper.survey.store import Survey
+from mapper.workflow import survey_products
 
 
 def register(sub) -> None:
     p = sub.add_parser(
         "export",
-        help="write a GeoPackage (readings, site, zones, assets, contours, bands, hotspots, advice) "
-        "and a GeoTIFF of the field beside it",
+        help=summary('export'),
     )
     p.add_argument("survey", help="survey file")
     p.add_argument("out", help="GeoPackage to write (OUT.gpkg; the GeoTIFF goes to OUT.tif)")
@@ -34,26 +32,19 @@ def register(sub) -> None:
     p.set_defaults(func=run)
 
 
-def check_output(path: str, suffix: str) -> Path:
-    """Refuse an output name or folder before any work is done."""
-    out = Path(path)
-    if out.suffix.lower() != suffix:
-        raise MapperError(f"output {out.name!r} should end in {suffix}", where=str(out))
-    if not out.parent.exists():
-        raise MapperError("folder does not exist", where=str(out.parent))
-    return out
-
-
 def run(args) -> int:
     check_output(args.out, ".gpkg")
     if args.csv is not None:
         check_output(args.csv, ".csv")
-    with Survey.open(args.survey) as survey:
-        products = survey_products(survey, args.threshold, args.method, args.cell, height_m=args.height)
+    with working("export") as step, Survey.open(args.survey) as survey:
+        products = survey_products(survey, args.threshold, args.method, args.cell, height_m=args.height,
+                                   on_step=step)
     print_notes(products)
-    from mapper.export.bundle import export_products  # geopandas, rasterio: load when writing
+    with working("export") as step:
+        step("writing the GeoPackage and GeoTIFF")
+        from mapper.export.bundle import export_products  # geopandas, rasterio: load when writing
 
-    result = export_products(products, args.out, csv_path=args.csv)
+        result = export_products(products, args.out, csv_path=args.csv)
     for line in result.lines(products):
         say(line)
     return 0

@@ -2,19 +2,22 @@
 
 from __future__ import annotations
 
+from mapper.cli.commands import summary
 from mapper.cli.common import fmt, neighbors_arg, positive_float, say, table, warn
+from mapper.cli.progress import working
 from mapper.corrections.pipeline import correct_survey
 from mapper.errors import MapperError
-from mapper.field import METHODS, MODELS, Variogram, build_field, field_to_bytes
-from mapper.field.inputs import MIN_FIELD_POSITIONS, distinct_positions, field_heights, field_inputs
-from mapper.field.physical import seeds_from_site
+from mapper.field import METHODS, MODELS, Variogram, field_to_bytes
+from mapper.field.inputs import MIN_FIELD_POSITIONS, distinct_positions, field_inputs
 from mapper.survey.store import Survey
+from mapper.units import field_text_in
+from mapper.workflow import build_survey_field, too_few_positions
 
 
 def register(sub) -> None:
     p = sub.add_parser(
         "grid",
-        help="interpolate the corrected readings (kriging, RBF or IDW) and store the field model",
+        help=summary('grid'),
         description="Interpolate the survey's corrected field readings onto a grid over the site, "
         "with leave-one-out cross-validation, and store the field model in the survey. A variogram "
         "given here is used as is, without fitting.",
@@ -74,16 +77,11 @@ def run(args) -> int:
         xy, values = field_inputs(corrected.readings)
         positions = distinct_positions(xy)
         if positions < MIN_FIELD_POSITIONS:
-            raise MapperError(
-                f"a field model needs readings at {MIN_FIELD_POSITIONS} or more distinct positions; "
-                f"the survey has {positions}",
-                where=str(survey.path),
-            )
-        grid = build_field(
-            xy, values, survey.site.outline, method=method, cell_m=args.cell,
-            neighbors=args.neighbors, variogram=variogram, heights_m=field_heights(corrected.readings),
-            seeds=seeds_from_site(survey.site), height_m=args.height,
-        )
+            raise MapperError(too_few_positions(positions), where=str(survey.path))
+        with working("grid") as step:
+            step(f"field model ({method}, {positions} positions)")
+            grid = build_survey_field(survey.site, corrected.readings, method=method, cell_m=args.cell,
+                                      neighbors=args.neighbors, variogram=variogram, height_m=args.height)
         summary = {
             "method": grid.method,
             "reason": grid.reason,
@@ -96,7 +94,7 @@ def run(args) -> int:
     say(f"field model stored in {args.survey}: {grid.method}, {len(grid.x)} x {len(grid.y)} cells of {grid.cell_m:g} m")
     say(f"from {len(values)} corrected readings at {positions} positions "
         f"(corrections: {', '.join(corrected.applied) or 'none'})")
-    say(f"why: {grid.reason}")
+    say(f"why: {field_text_in(grid.reason, unit)}")
     text = grid.params.get("variogram_text")
     if text:
         fit = grid.params.get("variogram_fit")

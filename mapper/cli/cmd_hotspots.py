@@ -1,6 +1,6 @@
 """``mapper hotspots``: where a survey's field reaches the action level, and what is too close.
 
-Runs :func:`mapper.export.pipeline.survey_products` on the survey (corrected readings, the stored
+Runs :func:`mapper.workflow.survey_products` on the survey (corrected readings, the stored
 field model or one interpolated now when none is stored or the readings changed since) and
 prints its findings (:func:`mapper.features.analyse`): hotspots, zone limits, probable
 exceedance, keep-away checks, places to measure next, and the cautions.
@@ -12,17 +12,18 @@ import json
 
 import numpy as np
 
+from mapper.cli.commands import summary
 from mapper.cli.common import fmt, say, table, threshold_arg, warn
-from mapper.export.pipeline import Products, survey_file_products
-from mapper.features import Findings
 from mapper.features.hotspots import MEASURED_NOTE
 from mapper.features.zone_results import zone_sentence
+from mapper.presentation import hotspot_table
+from mapper.workflow import Products, survey_file_products
 
 
 def register(sub) -> None:
     p = sub.add_parser(
         "hotspots",
-        help="list hotspots, keep-away violations and where to measure next",
+        help=summary('hotspots'),
         description="Outline where the field magnitude reaches the action level (both "
         "polarities), check the ANSI/ESD S20.20 keep-away distances, and print the cautions.",
     )
@@ -78,41 +79,14 @@ def _num(value: float | None, digits: int = 2) -> str:
     return "-" if value is None else f"{value:.{digits}f}"
 
 
-def hotspot_rows(findings: Findings, hotspots, unit: str) -> list[list[str]]:
-    """Table rows for hotspots, values in the display unit."""
-    rows = []
-    for h in hotspots:
-        rows.append(
-            [
-                h.id,
-                "+" if h.polarity == "positive" else "-",
-                h.status,
-                f"{h.area_m2:.2f}",
-                fmt(h.peak_v_per_m, unit),
-                f"{h.peak_x:.2f}, {h.peak_y:.2f}",
-                fmt(h.mean_v_per_m, unit),
-                _num(h.p_exceed_max),
-                str(len(h.reading_ids)),
-                "-" if h.nearest_asset is None else f"{h.nearest_asset} {h.nearest_asset_m:.2f} m",
-                ", ".join(h.zones) or "-",
-            ]
-        )
-    return rows
+#: Columns of the hotspot tables (keys of :data:`mapper.presentation.HOTSPOT_COLUMNS`).
+HOTSPOT_COLUMNS = ("id", "pol", "status", "area", "peak", "peak_at", "mean", "p_max", "readings", "nearest",
+                   "zones")
 
 
-_HOTSPOT_HEADER = (
-    "id",
-    "pol",
-    "status",
-    "area m²",
-    "peak",
-    "peak at x, y (m)",
-    "mean",
-    "P max",
-    "readings",
-    "nearest asset",
-    "zones",
-)
+def _hotspot_table(hotspots, unit: str) -> str:
+    header, rows = hotspot_table(hotspots, unit, HOTSPOT_COLUMNS)
+    return table(rows, header)
 
 
 def report_lines(products: Products) -> list[str]:
@@ -121,8 +95,8 @@ def report_lines(products: Products) -> list[str]:
     Parameters
     ----------
     products : Products
-        Output of :func:`~mapper.export.pipeline.survey_products` with a field model
-        (:meth:`~mapper.export.pipeline.Products.require_field`).
+        Output of :func:`~mapper.workflow.survey_products` with a field model
+        (:meth:`~mapper.workflow.Products.require_field`).
     """
     products.require_field()
     findings = products.findings
@@ -136,7 +110,7 @@ def report_lines(products: Products) -> list[str]:
     measured = any(h.status == "measured" for h in (*findings.hotspots, *findings.zone_hotspots))
     if findings.hotspots:
         out.append(f"Hotspots ({len(findings.hotspots)}):")
-        out.append(table(hotspot_rows(findings, findings.hotspots, unit), _HOTSPOT_HEADER))
+        out.append(_hotspot_table(findings.hotspots, unit))
         out.append(
             "status: confirmed = a corrected reading inside reaches the level; suspected = only "
             "the interpolation says so"
@@ -151,10 +125,9 @@ def report_lines(products: Products) -> list[str]:
         out.append(f"No hotspots: no reading and no part of the mapped field reaches {findings.threshold_label}.")
     if findings.zone_hotspots:
         out += ["", "Zones with their own limit:"]
-        rows = hotspot_rows(findings, findings.zone_hotspots, unit)
+        header, rows = hotspot_table(findings.zone_hotspots, unit, HOTSPOT_COLUMNS)
         for row, h in zip(rows, findings.zone_hotspots, strict=True):
             row.insert(1, fmt(h.threshold_v_per_m, unit))
-        header = list(_HOTSPOT_HEADER)
         header.insert(1, "limit")
         out.append(table(rows, header))
         if measured and not findings.hotspots:

@@ -9,6 +9,7 @@ import time
 from pathlib import Path
 from zoneinfo import ZoneInfo, ZoneInfoNotFoundError
 
+from mapper.cli.commands import summary
 from mapper.cli.common import positive_float, say, unit_arg, warn
 from mapper.errors import MapperError
 from mapper.readings.importing import (
@@ -18,10 +19,11 @@ from mapper.readings.importing import (
     write_rejected,
 )
 from mapper.survey.store import Survey
+from mapper.wording import plural
 
 
 def register(sub) -> None:
-    p = sub.add_parser("import", help="import readings (or condition notes) from a CSV file, all or nothing")
+    p = sub.add_parser("import", help=summary('import'))
     p.add_argument("survey", help="survey file")
     p.add_argument("file", help="CSV with x,y (or lon,lat),value[,unit,time,height_m,note,kind,meter,point]")
     p.add_argument("--unit", type=unit_arg, help="unit of values without a unit column")
@@ -58,7 +60,7 @@ def run(args) -> int:
         if is_conditions_csv(args.file):
             notes = parse_conditions_csv(args.file, tz)
             survey.add_condition_notes([(n.rh_percent, n.temperature_c, n.note, n.time) for n in notes])
-            say(f"imported {len(notes)} condition notes into {survey.path}")
+            say(f"imported {plural(len(notes), 'condition note')} into {survey.path}")
             return 0
         parsed = parse_readings_csv(
             args.file,

@@ -3,16 +3,19 @@
 from __future__ import annotations
 
 import json
+from datetime import datetime
 
+from mapper.cli.commands import summary
 from mapper.cli.common import say
 from mapper.corrections.pipeline import correct_survey
 from mapper.survey.store import Survey
 from mapper.survey.summary import summarise
 from mapper.units import format_field
+from mapper.wording import local_span, plural
 
 
 def register(sub) -> None:
-    p = sub.add_parser("info", help="show a survey's site, plan, readings and conditions")
+    p = sub.add_parser("info", help=summary('info'))
     p.add_argument("survey", help="survey file")
     p.add_argument("--json", action="store_true", help="print JSON instead of text")
     p.set_defaults(func=run)
@@ -25,7 +28,7 @@ def run(args) -> int:
     info["corrections"] = {
         "applied": list(result.applied),
         "warnings": list(result.warnings),
-        "drift": [d.summary() for d in result.drift],
+        "drift": [d.summary(info["display_unit"]) for d in result.drift],
         "outliers_flagged": [r.reading.point or f"#{r.reading.id}" for r in result.flagged_outliers],
     }
     if args.json:
@@ -34,7 +37,9 @@ def run(args) -> int:
     unit = info["display_unit"]
     site = info["site"]
     say(f"survey    {info['name']}  ({info['file']})")
-    say(f"site      {site['area_m2']:.1f} m², {site['assets']} assets, {site['zones']} zones")
+    if info["operator"]:
+        say(f"operator  {info['operator']}")
+    say(f"site      {site['area_m2']:.1f} m², {plural(site['assets'], 'asset')}, {plural(site['zones'], 'zone')}")
     if site["georeferenced"]:
         say(
             f"georef    {site['crs']}, scale {site['georef_scale']:.6f}, rotation "
@@ -45,11 +50,13 @@ def run(args) -> int:
     plan = info["plan"]
     say(f"plan      {info['points']} points, {plan['layout']} at {plan['spacing_m']:g} m, walk {plan['walk_length_m']:.0f} m")
     say(f"visited   {info['visited']} of {info['points']} points")
-    kinds = ", ".join(f"{k} {v}" for k, v in sorted(info["readings_by_kind"].items())) or "none"
-    say(f"readings  {info['readings']} field readings ({kinds}; {info['free_position_readings']} off-grid; "
-        f"{info['superseded']} superseded rows kept)")
+    by_kind = info["readings_by_kind"]
+    kinds = ", ".join(f"{k} {v}" for k, v in sorted(by_kind.items()))
+    say(f"readings  {plural(sum(by_kind.values()), 'reading')}" + (f" ({kinds})" if kinds else "")
+        + f"; {info['free_position_readings']} off-grid; {plural(info['superseded'], 'superseded row')} kept")
     if info["time_span"]:
-        say(f"time      {info['time_span'][0]} .. {info['time_span'][1]} (UTC)")
+        span = tuple(datetime.fromisoformat(t) for t in info["time_span"])
+        say(f"time      {local_span(span, info['timezone'])}")
     say(f"units     {unit}, sign convention {info['sign_convention']}, "
         f"threshold {format_field(info['threshold_v_per_m'], unit)}")
     cond = info["conditions"]
@@ -57,7 +64,7 @@ def run(args) -> int:
         rh = cond["rh_percent"]
         t = cond["temperature_c"]
         say(
-            f"conditions {cond['notes']} notes"
+            f"conditions {plural(cond['notes'], 'note')}"
             + (f", RH {rh[0]:g}-{rh[1]:g} %" if rh else "")
             + (f", {t[0]:g}-{t[1]:g} °C" if t else "")
         )
@@ -69,7 +76,7 @@ def run(args) -> int:
     for line in corr["drift"]:
         say(f"drift     {line}")
     if corr["outliers_flagged"]:
-        say(f"review    {len(corr['outliers_flagged'])} readings flagged as possible outliers: "
+        say(f"review    {plural(len(corr['outliers_flagged']), 'reading')} flagged as possible outliers: "
             f"{', '.join(corr['outliers_flagged'][:12])}")
     for message in site["warnings"] + corr["warnings"]:
         say(f"warning   {message}")

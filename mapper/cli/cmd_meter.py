@@ -6,6 +6,7 @@ import argparse
 import json
 from datetime import UTC, date, datetime
 
+from mapper.cli.commands import summary
 from mapper.cli.common import fmt, say, table, unit_arg, warn
 from mapper.corrections.calibration import check_meter_file, read_calibration_csv
 from mapper.corrections.meter import MeterProfile
@@ -52,7 +53,7 @@ def offset_arg(text: str) -> float:
 
 
 def register(sub) -> None:
-    p = sub.add_parser("meter", help="meter profiles and calibration checks")
+    p = sub.add_parser("meter", help=summary('meter'))
     msub = p.add_subparsers(dest="meter_command", metavar="ACTION", parser_class=type(p))
     msub.required = True
 

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+from mapper.cli.commands import summary
 from mapper.cli.common import positive_float, role_arg, say, threshold_arg, unit_arg, warn
 from mapper.plan.grid import DEFAULT_SPACING_M, LAYOUTS
 from mapper.survey.create import DEFAULT_THRESHOLD_V_PER_M, create_survey
@@ -9,7 +10,7 @@ from mapper.units import SIGN_CONVENTIONS, format_field, resolve_threshold
 
 
 def register(sub) -> None:
-    p = sub.add_parser("new", help="create a survey from a site file and plan its walking grid")
+    p = sub.add_parser("new", help=summary('new'))
     p.add_argument("survey", help="survey file to create (e.g. hall3.survey)")
     p.add_argument("--site", required=True, help="site file (.toml) or vector file (.gpkg, .geojson, .shp, .dxf)")
     p.add_argument(
@@ -57,11 +58,9 @@ def run(args) -> int:
         say(f"created {survey.path} for site {site.name!r} ({site.area_m2:.1f} m²)")
         if site.georef:
             g = site.georef
-            residuals = ", ".join(f"{r:.3f}" for r in g.residuals_m) or "-"
-            say(
-                f"georeference: {g.crs}, scale {g.scale:.6f}, rotation {g.rotation_deg:.3f}°, "
-                f"residuals [{residuals}] m, RMS {g.rms_m:.3f} m"
-            )
+            fit = (f"residuals {', '.join(f'{r:.3f}' for r in g.residuals_m)} m, RMS {g.rms_m:.3f} m"
+                   if g.residuals_m else "fitted exactly (two control points leave no residual to check)")
+            say(f"georeference: {g.crs}, scale {g.scale:.6f}, rotation {g.rotation_deg:.3f}°, {fit}")
         else:
             say("georeference: none (local site grid in metres)")
         say(

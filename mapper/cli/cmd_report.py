@@ -4,15 +4,16 @@ from __future__ import annotations
 
 from pathlib import Path
 
-from mapper.cli.cmd_export import check_output
-from mapper.cli.common import positive_float, print_notes, say, threshold_arg, warn
-from mapper.export.pipeline import survey_products
+from mapper.cli.commands import summary
+from mapper.cli.common import check_output, positive_float, print_notes, say, threshold_arg, warn
+from mapper.cli.progress import working
 from mapper.field.build import METHODS
 from mapper.survey.store import Survey
+from mapper.workflow import survey_products
 
 
 def register(sub) -> None:
-    p = sub.add_parser("report", help="write a PDF report: the field map, the findings and the cautions")
+    p = sub.add_parser("report", help=summary('report'))
     p.add_argument("survey", help="survey file")
     p.add_argument("out", help="PDF to write")
     p.add_argument("--threshold", type=threshold_arg, default=None,
@@ -37,14 +38,17 @@ def run(args) -> int:
     check_output(args.out, ".pdf")
     if args.png:
         check_output(args.png, ".png")
-    with Survey.open(args.survey) as survey:
-        products = survey_products(survey, args.threshold, args.method, args.cell, height_m=args.height)
+    with working("report") as step, Survey.open(args.survey) as survey:
+        products = survey_products(survey, args.threshold, args.method, args.cell, height_m=args.height,
+                                   on_step=step)
         history, current = (None, None) if args.db is None else _history(survey, args.db)
     print_notes(products)
     png = None if args.png is None else (Path(args.png) if args.png else Path(args.out).with_suffix(".png"))
-    from mapper.export.report import write_report  # matplotlib: load only when drawing
+    with working("report") as step:
+        step("drawing the pages")
+        from mapper.export.report import write_report  # matplotlib: load only when drawing
 
-    result = write_report(products, args.out, png_path=png, history=history, current=current)
+        result = write_report(products, args.out, png_path=png, history=history, current=current)
     say(f"wrote {result.pdf} ({result.pages} pages)")
     if result.png is not None:
         say(f"wrote {result.png} (the map alone)")

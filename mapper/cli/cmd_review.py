@@ -4,18 +4,19 @@ from __future__ import annotations
 
 import json
 
+from mapper.cli.commands import summary
 from mapper.cli.common import fmt, say, table
 from mapper.corrections.outliers import OUTLIER_FLAG
 from mapper.corrections.pipeline import correct_survey
 from mapper.errors import MapperError
-from mapper.readings.model import EXCLUDED_FLAG
+from mapper.readings.model import DOUBTFUL_FLAG, EXCLUDED_FLAG
 from mapper.survey.store import Survey
 
 
 def register(sub) -> None:
     p = sub.add_parser(
         "review",
-        help="list readings flagged for review; exclude a reading from the map or bring it back",
+        help=summary('review'),
         description="Lists readings the outlier check or the surveyor flagged. --exclude keeps a "
         "reading out of the field model (it stays in the survey and the exports, flagged); "
         "--include undoes that. Both are recorded as superseding edits, never deletions.",
@@ -48,6 +49,15 @@ def set_excluded(survey: Survey, reading_id: int, excluded: bool, reason: str = 
     if reason:
         note = f"{note}; {reason}" if note else reason
     return survey.supersede(reading_id, "edit", {"flags": flags, "note": note})
+
+
+#: What each flag the review can list means (only those listed are explained).
+FLAG_MEANINGS = {
+    OUTLIER_FLAG: "differs from its neighbours beyond what the local trend explains; measure it again "
+                  "or exclude it with --exclude ID (nothing is removed automatically)",
+    EXCLUDED_FLAG: "left out of the field model by hand (--include ID takes it back)",
+    DOUBTFUL_FLAG: "marked doubtful by the surveyor in the survey app; still used in the field model",
+}
 
 
 def run(args) -> int:
@@ -86,6 +96,8 @@ def run(args) -> int:
           ", ".join(r["flags"]), r["note"]] for r in rows],
         ["id", "point", "x, y (m)", "corrected", "flags", "note"],
     ))
-    say(f"'{OUTLIER_FLAG}': differs from its neighbours beyond what the local trend explains; measure it "
-        "again or exclude it with --exclude ID (nothing is removed automatically)")
+    listed = {f for r in rows for f in r["flags"]}
+    for flag in sorted(listed):
+        meaning = FLAG_MEANINGS.get(flag, "set by hand on the reading")
+        say(f"'{flag}': {meaning}")
     return 0

@@ -4,15 +4,16 @@ from __future__ import annotations
 
 import json
 
+from mapper.cli.commands import summary
 from mapper.cli.common import fmt, say, table, warn
-from mapper.export.pipeline import survey_file_products
 from mapper.features.sources import LIMITATIONS, source_records
+from mapper.workflow import survey_file_products
 
 
 def register(sub) -> None:
     p = sub.add_parser(
         "sources",
-        help="list the likely charged objects (physical field model), largest first",
+        help=summary('sources'),
         description="Fit the physical field model (charged sources over a grounded floor, a "
         "background and a residual) to the corrected readings, or use the stored one, and list "
         "the sources: the site's assets that carry charge and unlisted ones found in the readings.",

@@ -5,6 +5,7 @@ from __future__ import annotations
 import sys
 from datetime import timedelta
 
+from mapper.cli.commands import summary
 from mapper.cli.common import positive_float, say, threshold_arg, unit_arg
 from mapper.errors import MapperError
 from mapper.plan.grid import DEFAULT_SPACING_M, LAYOUTS
@@ -15,7 +16,7 @@ from mapper.units import SIGN_CONVENTIONS, resolve_threshold
 def register(sub) -> None:
     p = sub.add_parser(
         "walk",
-        help="walk the grid in a terminal app: record readings, watch the live map",
+        help=summary('walk'),
         description="Open SURVEY in the terminal app (keys: F1 in the app). With --new SITE, create the "
         "survey first, as 'mapper new' would. Every reading is saved before the status line says so.",
     )

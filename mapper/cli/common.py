@@ -5,6 +5,7 @@ from __future__ import annotations
 import argparse
 import sys
 from collections.abc import Sequence
+from pathlib import Path
 
 from mapper.errors import MapperError
 from mapper.units import canonical_unit, format_field, parse_threshold_text
@@ -91,9 +92,22 @@ def fmt(value_v_per_m: float | None, unit: str) -> str:
 
 
 def print_notes(products) -> None:
-    """Print a pipeline run's notes: field-model remarks to stdout, warnings to stderr."""
+    """Print a run's notes (:class:`mapper.workflow.Note`): remarks to stdout, warnings to stderr.
+
+    The no-field reason is left to the command, which says it where the map would be.
+    """
     for note in products.notes:
-        if note.startswith("field model:"):
-            say(note)
-        elif note != products.no_field_reason:
-            warn(note)
+        if note.level == "remark":
+            say(note.text)
+        elif note.level == "warning":
+            warn(note.text)
+
+
+def check_output(path: str, suffix: str) -> Path:
+    """Refuse an output name or folder before any work is done."""
+    out = Path(path)
+    if out.suffix.lower() != suffix:
+        raise MapperError(f"output {out.name!r} should end in {suffix}", where=str(out))
+    if not out.parent.exists():
+        raise MapperError("folder does not exist", where=str(out.parent))
+    return out

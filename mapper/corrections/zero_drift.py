@@ -29,6 +29,8 @@ from datetime import datetime
 import numpy as np
 
 from mapper.readings.model import Reading
+from mapper.units import format_field
+from mapper.wording import plural
 
 #: Flag added to field readings outside the time span of their meter's control readings.
 DRIFT_EXTRAPOLATED = "drift-extrapolated"
@@ -156,21 +158,27 @@ class DriftReport:
     extrapolated: int
     knots: tuple[DriftKnot, ...]
 
-    def summary(self) -> str:
-        """One line for the console and the report."""
+    def summary(self, unit: str = "V/m") -> str:
+        """One line for the console and the report, field values in the display unit ``unit``."""
         if not self.knots:
             return f"meter {self.meter_id}: no zero or reference readings; drift not corrected"
         rate = (
             "rate n/a (one control time)"
             if self.rate_v_per_m_per_h is None
-            else f"rate {self.rate_v_per_m_per_h:+.4g} V/m per hour"
+            else f"rate {_signed(self.rate_v_per_m_per_h, unit)} per hour"
         )
         return (
-            f"meter {self.meter_id}: {self.n_zero} zero and {self.n_reference} reference readings"
+            f"meter {self.meter_id}: {plural(self.n_zero, 'zero reading')} and "
+            f"{plural(self.n_reference, 'reference reading')}"
             f" (stations: {', '.join(self.stations) or 'none'}), {rate}, largest correction "
-            f"{self.largest_correction_v_per_m:+.4g} V/m, {self.extrapolated} of "
-            f"{self.field_readings} field readings outside the control span"
+            f"{_signed(self.largest_correction_v_per_m, unit)}, {self.extrapolated} of "
+            f"{plural(self.field_readings, 'field reading')} outside the control span"
         )
+
+
+def _signed(value_v_per_m: float, unit: str) -> str:
+    text = format_field(value_v_per_m, unit, 4)
+    return text if text.startswith("-") else "+" + text
 
 
 def _seconds(times: Sequence[datetime]) -> np.ndarray:

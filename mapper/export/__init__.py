@@ -1,8 +1,8 @@
-"""Hand-over: the shared survey pipeline, GeoPackage with styles, GeoTIFF, CSV, the PDF report
-and the GeoPackage of a before/after comparison.
+"""Hand-over: GeoPackage with styles, GeoTIFF, CSV, the PDF report, and the GeoPackage and PDF
+of a before/after comparison.
 
-:func:`survey_products` runs survey -> corrected readings -> field grid -> findings once; the
-export, the report and the terminal app all read its :class:`Products`.
+Everything here writes :class:`mapper.workflow.Products`, made once per survey by the
+application layer (:func:`mapper.workflow.survey_products`).
 """
 
 import importlib
@@ -20,10 +20,6 @@ _WHERE = {
     "write_geopackage": "gpkg",
     "MetaRow": "metadata",
     "metadata_rows": "metadata",
-    "MIN_FIELD_POSITIONS": "pipeline",
-    "Products": "pipeline",
-    "survey_file_products": "pipeline",
-    "survey_products": "pipeline",
     "grid_transform": "raster",
     "write_geotiff": "raster",
     "ReportResult": "report",

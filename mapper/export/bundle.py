@@ -7,9 +7,10 @@ from pathlib import Path
 
 from mapper.export.csv_out import write_readings_csv
 from mapper.export.gpkg import GpkgResult, write_geopackage
-from mapper.export.pipeline import Products
 from mapper.export.raster import write_geotiff
 from mapper.units import format_field
+from mapper.wording import plural
+from mapper.workflow import Products
 
 
 @dataclass(frozen=True)
@@ -49,12 +50,12 @@ class ExportResult:
             if self.removed_stale_tif:
                 out.append(f"removed {Path(self.gpkg.path).with_suffix('.tif')} left by an earlier export")
         if self.csv is not None:
-            out.append(f"wrote {self.csv}: {len(products.readings)} corrected readings")
+            out.append(f"wrote {self.csv}: {plural(len(products.readings), 'corrected reading')}")
         if products.findings is not None:
             f = products.findings
             out.append(
-                f"at {format_field(products.threshold_v_per_m, products.display_unit)}: {len(f.hotspots)} hotspots, "
-                f"{len(f.violations)} keep-away violations, {len(f.advice)} suggested readings"
+                f"at {format_field(products.threshold_v_per_m, products.display_unit)}: {plural(len(f.hotspots), 'hotspot')}, "
+                f"{plural(len(f.violations), 'keep-away violation')}, {plural(len(f.advice), 'suggested reading')}"
             )
         return out
 
@@ -65,7 +66,7 @@ def export_products(products: Products, gpkg_path: str | Path, *, csv_path: str 
     Parameters
     ----------
     products : Products
-        Output of :func:`~mapper.export.pipeline.survey_products`.
+        Output of :func:`~mapper.workflow.survey_products`.
     gpkg_path : str or Path
         Target ``.gpkg``.
     csv_path : str or Path, optional

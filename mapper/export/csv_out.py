@@ -11,7 +11,7 @@ import pandas as pd
 from mapper.atomic_file import atomic_path
 from mapper.errors import MapperError
 from mapper.export.layers import READING_COLUMNS, reading_records
-from mapper.export.pipeline import Products
+from mapper.workflow import Products
 
 #: Columns of the CSV, in order: export CRS coordinates first.
 CSV_COLUMNS = ("x_export", "y_export", "crs", *READING_COLUMNS)
@@ -33,7 +33,7 @@ def write_readings_csv(products: Products, path: str | Path) -> Path:
     Parameters
     ----------
     products : Products
-        Output of :func:`~mapper.export.pipeline.survey_products`.
+        Output of :func:`~mapper.workflow.survey_products`.
     path : str or Path
         Target file; replaced if it exists.
 

@@ -19,7 +19,7 @@ from mapper.errors import MapperError
 from mapper.export import styles as st
 from mapper.export.layers import Layer, all_layers
 from mapper.export.metadata import METADATA_TABLE, metadata_rows
-from mapper.export.pipeline import Products
+from mapper.workflow import Products
 
 
 @dataclass(frozen=True)
@@ -52,8 +52,10 @@ def layer_styles(products: Products) -> list[st.LayerStyle]:
     f = products.findings
     if f is not None:
         out += [
-            st.LayerStyle("readings", st.readings_qml(f.levels), "readings graded on the band ramp"),
-            st.LayerStyle("bands", st.bands_qml(f.bands, f.levels), "diverging ramp: blue negative, red positive"),
+            st.LayerStyle("readings", st.readings_qml(f.threshold_v_per_m, products.display_unit),
+                          "readings graded on the action-level scale"),
+            st.LayerStyle("bands", st.bands_qml(f.bands, f.threshold_v_per_m),
+                          "action-level scale: blue negative, red positive, neutral near zero"),
             st.LayerStyle("contours", st.contours_qml(), "contours labelled with their level"),
             st.LayerStyle("hotspots", st.hotspots_qml(), "hotspots outlined and labelled with ids"),
             st.LayerStyle("probable_exceedance",
@@ -80,7 +82,7 @@ def write_geopackage(products: Products, path: str | Path, *, exported_utc: str 
     Parameters
     ----------
     products : Products
-        Output of :func:`~mapper.export.pipeline.survey_products`.
+        Output of :func:`~mapper.workflow.survey_products`.
     path : str or Path
         Target ``.gpkg``; replaced if it exists.
     exported_utc : str, optional

@@ -16,10 +16,10 @@ import shapely
 from shapely.geometry import Point
 
 from mapper.export.crs import transform_all
-from mapper.export.pipeline import Products, is_excluded
 from mapper.export.styles import band_colors
 from mapper.features.sources import source_records
 from mapper.units import from_si
+from mapper.workflow import Products, is_excluded
 
 
 @dataclass(frozen=True)
@@ -161,7 +161,7 @@ def contours_layer(products: Products) -> Layer:
 def bands_layer(products: Products) -> Layer:
     """Filled bands between consecutive levels (open ends stored as NULL)."""
     f = products.findings
-    colors = band_colors(f.bands, f.levels)
+    colors = band_colors(f.bands, f.threshold_v_per_m)
     unit = products.display_unit
     records, geoms = [], []
     for i, (b, color) in enumerate(zip(f.bands, colors, strict=True)):

@@ -6,11 +6,11 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 from mapper import __version__
-from mapper.export.pipeline import Products
 from mapper.features import CAUTIONS, LIMITS_ARE_DEFAULTS
 from mapper.features.limits import DEFAULT_RULES
 from mapper.survey.store import to_utc_text, utc_now
 from mapper.units import format_field
+from mapper.workflow import Products
 
 #: Name of the metadata table in the GeoPackage.
 METADATA_TABLE = "survey_metadata"
@@ -49,7 +49,7 @@ def metadata_rows(products: Products, exported_utc: str | None = None) -> list[M
     Parameters
     ----------
     products : Products
-        Output of :func:`~mapper.export.pipeline.survey_products`.
+        Output of :func:`~mapper.workflow.survey_products`.
     exported_utc : str, optional
         Time stamp of the export; default now.
     """
@@ -159,7 +159,7 @@ def metadata_rows(products: Products, exported_utc: str | None = None) -> list[M
         if f.unmapped_exceedances:
             add("findings", "exceeding_readings_outside_hotspots", ", ".join(map(str, f.unmapped_exceedances)))
     for i, note in enumerate(p.notes, start=1):
-        add("notes", f"note {i}", note)
+        add("notes", f"note {i}", f"{note.level}: {note.text}")
     for i, caution in enumerate(CAUTIONS, start=1):
         add("cautions", f"caution {i}", caution)
     return rows

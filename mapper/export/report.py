@@ -21,7 +21,7 @@ import numpy as np
 import shapely
 from matplotlib.backends.backend_pdf import PdfPages
 from matplotlib.cm import ScalarMappable
-from matplotlib.colors import BoundaryNorm, LinearSegmentedColormap, ListedColormap, Normalize
+from matplotlib.colors import BoundaryNorm, LinearSegmentedColormap, ListedColormap
 from matplotlib.figure import Figure
 from matplotlib.lines import Line2D
 from matplotlib.patches import FancyBboxPatch, Patch, PathPatch, Rectangle
@@ -34,14 +34,20 @@ from mapper import __version__
 from mapper.atomic_file import atomic_path
 from mapper.errors import MapperError
 from mapper.export import styles as st
-from mapper.export.pipeline import Products
 from mapper.features import CAUTIONS, LIMITS_ARE_DEFAULTS
-from mapper.features.contours import Levels, nice_levels
+from mapper.features import colour_scale as cs
+from mapper.features.colour_scale import scale_levels
+from mapper.features.contours import Levels
 from mapper.features.hotspots import MEASURED_NOTE
 from mapper.features.sources import LIMITATIONS, source_records
 from mapper.features.zone_results import zone_sentence
+from mapper.presentation import HOTSPOT_COLUMNS as HOTSPOT_HEADERS
+from mapper.presentation import hotspot_table
+from mapper.site.model import Site
 from mapper.survey.store import to_utc_text, utc_now
-from mapper.units import format_field, from_si
+from mapper.units import field_text_in, format_field, from_si, plain_number
+from mapper.wording import local_span, plural
+from mapper.workflow import Products
 
 #: A4 landscape, inches.
 PAGE_SIZE_IN = (11.69, 8.27)
@@ -105,13 +111,13 @@ def _polygon_path(geom: BaseGeometry) -> MplPath | None:
     return MplPath(np.concatenate(verts), codes)
 
 
-def _fill(ax, geom: BaseGeometry, **kw) -> None:
+def fill_geometry(ax, geom: BaseGeometry, **kw) -> None:
     path = _polygon_path(geom)
     if path is not None:
         ax.add_patch(PathPatch(path, **kw))
 
 
-def _lines(ax, geom: BaseGeometry, **kw) -> None:
+def draw_lines(ax, geom: BaseGeometry, **kw) -> None:
     parts = getattr(geom, "geoms", [geom])
     for part in parts:
         if part.is_empty:
@@ -120,11 +126,11 @@ def _lines(ax, geom: BaseGeometry, **kw) -> None:
             xy = np.asarray(part.coords)
             ax.plot(xy[:, 0], xy[:, 1], **kw)
         elif part.geom_type == "Polygon":
-            _lines(ax, part.exterior, **kw)
+            draw_lines(ax, part.exterior, **kw)
             for ring in part.interiors:
-                _lines(ax, ring, **kw)
+                draw_lines(ax, ring, **kw)
         elif part.geom_type.startswith("Multi") or part.geom_type == "GeometryCollection":
-            _lines(ax, part, **kw)
+            draw_lines(ax, part, **kw)
         elif part.geom_type == "Point":
             ax.plot([part.x], [part.y], marker="s", color=kw.get("color", "k"), markersize=4)
 
@@ -207,15 +213,28 @@ def _band_cmap(levels: Levels, colors: Sequence[str]) -> tuple[ListedColormap, B
     return cmap, BoundaryNorm(bounds, cmap.N), bounds
 
 
-def _value_cmap() -> LinearSegmentedColormap:
-    return LinearSegmentedColormap.from_list("mapper_diverging", [((t + 1) / 2, c) for t, c in st.RAMP])
+def std_limits(values: np.ndarray) -> tuple[float, float]:
+    """Colour limits of an uncertainty map: the 2nd and 98th percentiles of its values.
+
+    One extreme cell at a corner must not leave the rest of the map one flat colour, so the
+    colours span the values present (beyond the limits the colour bar's ends extend).
+    """
+    v = np.asarray(values, dtype=float)
+    v = v[np.isfinite(v)]
+    if v.size == 0:
+        return 0.0, 1.0
+    lo, hi = (float(x) for x in np.percentile(v, [2.0, 98.0]))
+    if hi <= lo:
+        pad = max(abs(hi) * 0.05, 1e-12)
+        lo, hi = lo - pad, hi + pad
+    return lo, hi
 
 
 def _std_cmap() -> LinearSegmentedColormap:
     return LinearSegmentedColormap.from_list("mapper_uncertainty", ["#f7f7f7", "#d9d2e6", "#a593c6", "#6f5a9e"])
 
 
-class _Column:
+class TextColumn:
     """Writes lines of text downwards in figure coordinates."""
 
     def __init__(self, fig: Figure, x: float, top: float, width: float) -> None:
@@ -238,46 +257,35 @@ class _Column:
             self.y -= self._dy(size)
 
     def row(self, cells: Sequence[str], stops: Sequence[float], size: float = 7.5, bold: bool = False) -> None:
+        """One table row; a cell holding line breaks (a wrapped name) makes the row taller."""
         for cell, stop in zip(cells, stops, strict=True):
-            self.fig.text(self.x + stop, self.y, cell, fontsize=size, va="top",
+            self.fig.text(self.x + stop, self.y, cell, fontsize=size, va="top", linespacing=1.1,
                           fontweight="bold" if bold else "normal")
-        self.y -= self._dy(size)
+        lines = max((cell.count("\n") + 1 for cell in cells), default=1)
+        self.y -= self._dy(size) * (1 + 0.8 * (lines - 1))
 
     def gap(self, size: float = 4.0) -> None:
         self.y -= self._dy(size)
 
 
 # ------------------------------------------------------------------------------------- pages
-def local_span(span, timezone: str | None) -> str:
-    """The survey's time span, in the site's local time with its UTC offset when it has a
-    ``timezone`` (times stay UTC in the data), else in UTC."""
-    if not timezone:
-        return f"{span[0]:%Y-%m-%d %H:%M}–{span[1]:%H:%M} UTC"
-    from zoneinfo import ZoneInfo
-
-    zone = ZoneInfo(timezone)
-    a, b = span[0].astimezone(zone), span[1].astimezone(zone)
-    offset = a.strftime("%z")
-    return f"{a:%Y-%m-%d %H:%M}–{b:%H:%M} {timezone} (UTC{offset[:3]}:{offset[3:]})"
-
-
 def _title(fig: Figure, products: Products, heading: str) -> None:
     p = products
     fig.text(0.04, 0.965, f"{p.name}: {heading}", fontsize=15, fontweight="bold", va="top")
     span = p.time_span()
     when = local_span(span, p.site.timezone) if span else "no readings"
     method = (f"{p.grid.method}, cell {p.grid.cell_m:g} m" if p.grid is not None else "no field model")
-    fig.text(0.04, 0.925, f"Survey {when}  ·  {len(p.readings)} readings  ·  action level "
+    fig.text(0.04, 0.925, f"Survey {when}  ·  {plural(len(p.readings), 'reading')}  ·  action level "
              f"{format_field(p.threshold_v_per_m, p.display_unit)}  ·  {method}"
              + (f"  ·  operator {p.operator}" if p.operator else ""), fontsize=9, va="top", color="#333333")
     fig.text(0.04, 0.018, f"mapper {__version__}  ·  {to_utc_text(utc_now())[:16].replace('T', ' ')} UTC  ·  "
              f"CRS {p.crs.name}  ·  {Path(p.source).name}", fontsize=6.5, color="#555555")
 
 
-def _draw_site(ax, products: Products, *, labels: bool = True) -> None:
-    site = products.site
+def draw_site(ax, site: Site, *, labels: bool = True) -> None:
+    """Zones, assets (polygons, lines and points, labelled) and the outline on a map axes."""
     for zone in site.zones:
-        _lines(ax, zone.geometry, color=st.ZONE_COLOR, linewidth=1.2, linestyle=(0, (5, 3)), zorder=6)
+        draw_lines(ax, zone.geometry, color=st.ZONE_COLOR, linewidth=1.2, linestyle=(0, (5, 3)), zorder=6)
         if labels:
             minx, miny, maxx, maxy = zone.geometry.bounds
             ax.text(minx + 0.2, maxy - 0.2, zone.name, color=st.ZONE_COLOR, fontsize=6.5, ha="left", va="top",
@@ -286,14 +294,14 @@ def _draw_site(ax, products: Products, *, labels: bool = True) -> None:
     for asset in site.assets:
         g = asset.geometry
         if g.geom_type.endswith("Polygon"):
-            _fill(ax, g, facecolor="#9a9a9a", edgecolor="#4a4a4a", linewidth=0.7, alpha=0.55, zorder=5,
+            fill_geometry(ax, g, facecolor="#9a9a9a", edgecolor="#4a4a4a", linewidth=0.7, alpha=0.55, zorder=5,
                   hatch="////" if not asset.walkable else None)
         elif g.geom_type.endswith("Point"):
             for pt in getattr(g, "geoms", [g]):
                 ax.plot([pt.x], [pt.y], marker="o", markersize=5, color="#4a4a4a", markeredgecolor="white",
                         markeredgewidth=0.6, linestyle="none", zorder=5)
         else:
-            _lines(ax, g, color="#4a4a4a", linewidth=3.2, solid_capstyle="butt", zorder=5, alpha=0.8)
+            draw_lines(ax, g, color="#4a4a4a", linewidth=3.2, solid_capstyle="butt", zorder=5, alpha=0.8)
         if labels:
             if g.geom_type.endswith("Polygon") or g.geom_type.endswith("Point"):
                 p = g.representative_point()
@@ -301,11 +309,12 @@ def _draw_site(ax, products: Products, *, labels: bool = True) -> None:
                 p = g.interpolate(0.5, normalized=True)
             ax.text(p.x, p.y, asset.name, fontsize=5.8, ha="center", va="center", color="#1e1e1e", zorder=9,
                     style="italic", bbox={"boxstyle": "round,pad=0.08", "fc": "white", "ec": "none", "alpha": 0.6})
-    _lines(ax, site.outline, color=st.OUTLINE_COLOR, linewidth=1.6, zorder=7)
+    draw_lines(ax, site.outline, color=st.OUTLINE_COLOR, linewidth=1.6, zorder=7)
 
 
-def _frame_axes(ax, products: Products) -> tuple[float, float, float, float]:
-    minx, miny, maxx, maxy = products.site.outline.bounds
+def frame_axes(ax, site: Site) -> tuple[float, float, float, float]:
+    """Limits, equal aspect and axis labels of a site map; returns the outline's bounds, metres."""
+    minx, miny, maxx, maxy = site.outline.bounds
     w, h = maxx - minx, maxy - miny
     ax.set_xlim(minx - 0.03 * w, maxx + 0.03 * w)
     ax.set_ylim(miny - 0.14 * h, maxy + 0.04 * h)
@@ -325,44 +334,43 @@ def draw_map_page(fig: Figure, products: Products) -> None:
     unit = p.display_unit
     _title(fig, p, "electrostatic field map")
     ax = fig.add_axes((0.055, 0.085, 0.70, 0.80))
-    bounds = _frame_axes(ax, p)
+    bounds = frame_axes(ax, p.site)
     readings = list(p.readings)
     if f is not None:
-        colors = st.band_colors(f.bands, f.levels)
+        colors = st.band_colors(f.bands, f.threshold_v_per_m)
         for band, color in zip(f.bands, colors, strict=True):
-            _fill(ax, band.geometry, facecolor=color, edgecolor=color, linewidth=0.3, zorder=1)
+            fill_geometry(ax, band.geometry, facecolor=color, edgecolor=color, linewidth=0.3, zorder=1)
         span = bounds[2] - bounds[0]
         placed = [(h.geometry.bounds[2], h.geometry.bounds[3]) for h in (*f.hotspots, *f.zone_hotspots)]
         for iso in f.isolines:
             if iso.geometry.is_empty:
                 continue
-            _lines(ax, iso.geometry, color=st.CONTOUR_COLOR, linewidth=0.6, zorder=4)
+            draw_lines(ax, iso.geometry, color=st.CONTOUR_COLOR, linewidth=0.6, zorder=4)
             _label_lines(ax, iso.geometry, iso.label, 0.12 * span, placed, 0.09 * span)
         for region in f.probable:
-            _lines(ax, region.geometry, color=st.PROBABLE_COLOR, linewidth=1.3, linestyle=(0, (2, 2)), zorder=7)
+            draw_lines(ax, region.geometry, color=st.PROBABLE_COLOR, linewidth=1.3, linestyle=(0, (2, 2)), zorder=7)
         levels = f.levels
     else:
-        colors = None
         values = [r.value_v_per_m for r in readings] or [0.0, 1.0]
         lo, hi = min(values), max(values)
-        levels = nice_levels(lo, hi if hi > lo else lo + 1.0, unit=unit, count=6)
-        _fill(ax, p.site.outline, facecolor="#f2f2f2", edgecolor="none", zorder=1)
-    _draw_site(ax, p)
+        levels = Levels(scale_levels(p.threshold_v_per_m, lo, hi if hi > lo else lo + 1.0), unit)
+        edges = (-math.inf, *levels.values_v_per_m, math.inf)
+        colors = [cs.interval_hex(a, b, p.threshold_v_per_m) for a, b in zip(edges[:-1], edges[1:], strict=True)]
+        fill_geometry(ax, p.site.outline, facecolor="#f2f2f2", edgecolor="none", zorder=1)
+    draw_site(ax, p.site)
     if readings:
         xy = np.array([(r.reading.x, r.reading.y) for r in readings])
         if f is not None:
             ax.scatter(xy[:, 0], xy[:, 1], s=5, c="#111111", edgecolors="white", linewidths=0.3, zorder=10,
                        label="reading")
         else:
-            vals = np.array([from_si(r.value_v_per_m, unit) for r in readings])
-            scale = max(abs(v) for v in levels.display_values) or 1.0
-            ax.scatter(xy[:, 0], xy[:, 1], s=22, c=vals, cmap=_value_cmap(), vmin=-scale, vmax=scale,
-                       edgecolors="#111111", linewidths=0.4, zorder=10)
+            dots = [cs.colour_hex(r.value_v_per_m, p.threshold_v_per_m) for r in readings]
+            ax.scatter(xy[:, 0], xy[:, 1], s=22, c=dots, edgecolors="#111111", linewidths=0.4, zorder=10)
     if f is not None:
         for h in (*f.hotspots, *f.zone_hotspots):
             color = st.HOTSPOT_COLORS.get(h.polarity, "#000000")
-            _lines(ax, h.geometry, color="white", linewidth=3.4, zorder=11)
-            _lines(ax, h.geometry, color=color, linewidth=1.9, zorder=12)
+            draw_lines(ax, h.geometry, color="white", linewidth=3.4, zorder=11)
+            draw_lines(ax, h.geometry, color=color, linewidth=1.9, zorder=12)
             bx = h.geometry.bounds
             # the label sits at the outline's upper right, turned inward near the map's edges
             near_right = bx[2] > bounds[2] - 0.25 * (bounds[2] - bounds[0])
@@ -383,29 +391,19 @@ def draw_map_page(fig: Figure, products: Products) -> None:
         _north_arrow(nax, p.crs.site_north(c.x, c.y))
         fig.text(0.825, 0.785, "true north", fontsize=7, va="top", ha="center", color="#333333")
     cax = fig.add_axes((0.80, 0.36, 0.022, 0.38))
-    if colors is not None:
-        cmap, norm, ticks = _band_cmap(levels, colors)
-        cb = fig.colorbar(ScalarMappable(norm=norm, cmap=cmap), cax=cax, extend="both",
-                          ticks=ticks, spacing="uniform")
-        title = f"field estimate ({unit})"
-    else:
-        scale = max(abs(v) for v in levels.display_values) or 1.0
-        cb = fig.colorbar(ScalarMappable(norm=Normalize(-scale, scale),
-                                                       cmap=_value_cmap()), cax=cax)
-        title = f"reading ({unit})"
+    cmap, norm, ticks = _band_cmap(levels, colors)
+    cb = fig.colorbar(ScalarMappable(norm=norm, cmap=cmap), cax=cax, extend="both",
+                      ticks=ticks, spacing="uniform")
+    title = f"field estimate ({unit})" if f is not None else f"reading ({unit})"
     cb.ax.tick_params(labelsize=7.5)
-    cb.ax.yaxis.set_major_formatter(FuncFormatter(lambda v, _: f"{v:g}"))
+    cb.ax.yaxis.set_major_formatter(FuncFormatter(lambda v, _: plain_number(v, 4)))
     cb.set_label(title, fontsize=8.5)
     t = from_si(p.threshold_v_per_m, unit)
-    lo_b, hi_b = cax.get_ylim()
     for level in (t, -t):
-        if colors is not None:
-            pos = np.interp(level, ticks, np.linspace(0, 1, len(ticks))) if ticks[0] <= level <= ticks[-1] else None
-            if pos is not None:
-                y = lo_b + pos * (hi_b - lo_b)
-                cax.axhline(y, color="black", linewidth=1.6)
-                cax.text(-0.4, y, "action level", transform=cax.get_yaxis_transform(), fontsize=6.5,
-                         va="center", ha="right")
+        if ticks[0] <= level <= ticks[-1]:  # the colour bar's long axis is in data units
+            cax.axhline(level, color="black", linewidth=1.6)
+            cax.text(-0.4, level, "action level", transform=cax.get_yaxis_transform(), fontsize=6.5,
+                     va="center", ha="right")
     fig.text(0.80, 0.335, "red: positive, field pointing up\n(away from the floor)\n"
              "blue: negative, pointing down", fontsize=7, va="top", color="#333333", linespacing=1.3)
     handles = [
@@ -423,18 +421,14 @@ def draw_map_page(fig: Figure, products: Products) -> None:
     fig.legend(handles=handles, loc="upper left", bbox_to_anchor=(0.795, 0.25), frameon=False, fontsize=7)
 
 
+#: Columns of the report's hotspot table (keys of :data:`mapper.presentation.HOTSPOT_COLUMNS`).
+HOTSPOT_COLUMNS = ("id", "polarity", "status", "area", "peak", "max_reading", "p_max", "readings", "nearest")
+
+
 def _hotspot_rows(products: Products) -> list[list[str]]:
     f = products.findings
-    unit = products.display_unit
-    rows = []
-    for h in (*f.hotspots, *f.zone_hotspots):
-        near = f"{h.nearest_asset} ({h.nearest_asset_m:.1f} m)" if h.nearest_asset is not None else "-"
-        rows.append([
-            h.id, h.polarity, h.status, f"{h.area_m2:.1f}", format_field(h.peak_v_per_m, unit, 3),
-            "-" if h.max_reading_v_per_m is None else format_field(h.max_reading_v_per_m, unit, 3),
-            "-" if h.p_exceed_max is None else f"{h.p_exceed_max:.2f}", str(len(h.reading_ids)),
-            textwrap.shorten(near, 22, placeholder="…"),
-        ])
+    _, rows = hotspot_table((*f.hotspots, *f.zone_hotspots), products.display_unit, HOTSPOT_COLUMNS,
+                            wrap={"nearest": 24}, digits=3)
     return rows
 
 
@@ -464,7 +458,7 @@ def draw_findings_page(fig: Figure, products: Products) -> None:
     f = p.findings
     unit = p.display_unit
     _title(fig, p, "findings")
-    col = _Column(fig, 0.04, 0.895, 0.52)
+    col = TextColumn(fig, 0.04, 0.895, 0.52)
 
     col.heading("Hotspots")
     if f is None:
@@ -484,8 +478,7 @@ def draw_findings_page(fig: Figure, products: Products) -> None:
         rows = _hotspot_rows(p)
         if rows:
             stops = (0.0, 0.032, 0.092, 0.157, 0.207, 0.272, 0.347, 0.392, 0.445)
-            col.row(["id", "polarity", "status", "area m²", "peak est.", "max reading", "P max", "readings",
-                     "nearest asset"], stops, bold=True)
+            col.row([HOTSPOT_HEADERS[c] for c in HOTSPOT_COLUMNS], stops, bold=True)
             for row in rows[:MAX_HOTSPOT_ROWS]:
                 col.row(row, stops)
             if len(rows) > MAX_HOTSPOT_ROWS:
@@ -497,7 +490,7 @@ def draw_findings_page(fig: Figure, products: Products) -> None:
                      f"{format_field(p.threshold_v_per_m, unit)}.")
         if f.probable:
             extra = [r for r in f.probable if not r.hotspot_ids]
-            col.para(f"{len(f.probable)} region(s) where P(|E| ≥ action level) ≥ 0.5"
+            col.para(f"{plural(len(f.probable), 'region')} where P(|E| ≥ action level) ≥ 0.5"
                      + (f", {len(extra)} of them outside every hotspot (measure there)." if extra else "."), 7.5)
         if f.unmapped_exceedances:
             col.para(f"Readings at or above the action level outside every hotspot: "
@@ -525,7 +518,7 @@ def draw_findings_page(fig: Figure, products: Products) -> None:
     ranges = p.condition_ranges()
     rh, temp = ranges["rh_percent"], ranges["temperature_c"]
     if p.conditions:
-        col.para(f"{len(p.conditions)} condition notes; RH "
+        col.para(f"{plural(len(p.conditions), 'condition note')}; RH "
                  + (f"{rh[0]:g}–{rh[1]:g} %" if rh else "not noted") + "; temperature "
                  + (f"{temp[0]:g}–{temp[1]:g} °C" if temp else "not noted") + ".")
         notes = [c.note for c in p.conditions if c.note]
@@ -559,7 +552,7 @@ def draw_findings_page(fig: Figure, products: Products) -> None:
         col.para(p.no_field_reason or "No field model.", 7.5)
     else:
         g = p.grid
-        col.para(f"{g.method}, cell {g.cell_m:g} m. {g.reason}", 7.5)
+        col.para(f"{g.method}, cell {g.cell_m:g} m. {field_text_in(g.reason, unit)}", 7.5)
         if g.params.get("variogram_text"):
             col.para(f"Variogram: {g.params['variogram_text']}.", 7.5)
         table = g.cv_table or ((g.cv,) if g.cv else ())
@@ -594,32 +587,35 @@ def draw_findings_page(fig: Figure, products: Products) -> None:
 
     # Right: the standard deviation map.
     ax = fig.add_axes((0.60, 0.40, 0.36, 0.46))
-    ax.set_title("Uncertainty: standard deviation of the estimate", fontsize=9.5, loc="left",
+    ax.set_title("Uncertainty of a new reading (standard deviation)", fontsize=9.5, loc="left",
                  color="#1b3a6b", fontweight="bold")
-    _frame_axes(ax, p)
+    frame_axes(ax, p.site)
     g = p.grid
     if g is not None and np.isfinite(g.std).any():
         std = np.ma.masked_invalid(from_si(1.0, unit) * np.asarray(g.std, dtype=float))
+        vmin, vmax = std_limits(std.compressed())
         c = g.cell_m
         mesh = ax.pcolormesh(np.append(g.x - c / 2, g.x[-1] + c / 2), np.append(g.y - c / 2, g.y[-1] + c / 2),
-                             std, cmap=_std_cmap(), vmin=0.0, shading="flat", zorder=1, rasterized=True)
-        cb = fig.colorbar(mesh, ax=ax, fraction=0.04, pad=0.02)
+                             std, cmap=_std_cmap(), vmin=vmin, vmax=vmax, shading="flat", zorder=1,
+                             rasterized=True)
+        cb = fig.colorbar(mesh, ax=ax, fraction=0.04, pad=0.02, extend="both")
         cb.set_label(f"standard deviation ({unit})", fontsize=7.5)
         cb.ax.tick_params(labelsize=6.5)
     else:
         reason = "no field model" if g is None else f"method {g.method} gives no standard deviation"
         ax.text(0.5, 0.5, reason, transform=ax.transAxes, ha="center", va="center", fontsize=8)
-    _draw_site(ax, p, labels=False)
+    draw_site(ax, p.site, labels=False)
     if p.readings:
         xy = np.array([(r.reading.x, r.reading.y) for r in p.readings])
         ax.scatter(xy[:, 0], xy[:, 1], s=2, c="#111111", zorder=10)
-    fig.text(0.60, 0.365, "Low where readings are dense, high in gaps. Where the estimate is near the action "
-             "level and the deviation is large, take more readings (advice layer).", fontsize=7,
+    fig.text(0.60, 0.365, "How far a new reading there may differ from the map (one standard deviation, the "
+             "meter's scatter included); colours span this site's values. Large in gaps: where the estimate "
+             "is near the action level, measure there (next readings).", fontsize=7,
              va="top", color="#444444", wrap=True)
 
     # Bottom right: the cautions box, sized to its text.
     left, top, width = 0.60, 0.30, 0.36
-    cc = _Column(fig, left + 0.012, top, width - 0.024)
+    cc = TextColumn(fig, left + 0.012, top, width - 0.024)
     cc.heading("Cautions")
     for text in CAUTIONS:
         cc.para("• " + text, 7.4)
@@ -642,23 +638,23 @@ def draw_sources_page(fig: Figure, products: Products) -> None:
     rows = source_records(p.grid, p.site)
     phys = p.grid.params.get("physics", {})
     ax = fig.add_axes((0.06, 0.40, 0.88, 0.46))
-    _frame_axes(ax, p)
-    _draw_site(ax, p, labels=False)
+    frame_axes(ax, p.site)
+    draw_site(ax, p.site, labels=False)
     for r in rows:
         g = shapely.from_wkt(r["wkt"])
         color = "#c0392b" if r["charge_c"] > 0 else "#1f5fa8"
         if g.geom_type == "Point":
             ax.scatter([g.x], [g.y], s=90, marker="*", color=color, edgecolor="black", linewidth=0.5, zorder=11)
         elif g.geom_type.endswith("Polygon"):
-            _fill(ax, g, facecolor=color, edgecolor="black", linewidth=0.8, alpha=0.55, zorder=10)
+            fill_geometry(ax, g, facecolor=color, edgecolor="black", linewidth=0.8, alpha=0.55, zorder=10)
         else:
-            _lines(ax, g, color=color, linewidth=4.0, solid_capstyle="butt", zorder=10)
+            draw_lines(ax, g, color=color, linewidth=4.0, solid_capstyle="butt", zorder=10)
         ax.annotate(r["source_id"], (r["x_m"], r["y_m"]), xytext=(5, 5), textcoords="offset points",
                     fontsize=8, fontweight="bold", zorder=12,
                     bbox={"boxstyle": "round,pad=0.12", "fc": "white", "ec": "none", "alpha": 0.8})
     ax.set_title("Sources of the physical field model (red: positive charge, blue: negative)", fontsize=9.5,
                  loc="left", color="#1b3a6b", fontweight="bold")
-    col = _Column(fig, 0.06, 0.34, 0.88)
+    col = TextColumn(fig, 0.06, 0.34, 0.88)
     col.heading("Likely charged objects, largest field first")
     if not rows:
         col.para("No charged source explains the readings better than the background and the meter's noise.")
@@ -687,7 +683,7 @@ def write_report(products: Products, pdf_path: str | Path, *, png_path: str | Pa
     Parameters
     ----------
     products : Products
-        Output of :func:`~mapper.export.pipeline.survey_products`.
+        Output of :func:`~mapper.workflow.survey_products`.
     pdf_path : str or Path
         Target ``.pdf``; replaced if it exists.
     png_path : str or Path, optional

@@ -13,7 +13,7 @@ from datetime import datetime
 from matplotlib.figure import Figure
 
 from mapper.archive.history import History
-from mapper.export.pipeline import Products
+from mapper.workflow import Products
 from mapper.units import from_si
 
 STATUS_MARK = {"new": "new", "recurring": "recurring", "cleared": "cleared", None: "–"}

@@ -1,7 +1,8 @@
 """Our palette and the styles stored with the GeoPackage.
 
-The field's sign must read at a glance, so the ramp diverges from a pale neutral at zero to blue
-for negative fields (pointing down, towards the floor) and to red for positive ones. Styles are
+Field values are coloured on the one scale every map uses, tied to the action level
+(:mod:`mapper.features.colour_scale`): blue for negative fields (pointing down, towards the
+floor), red for positive ones, a pale neutral band around zero. Styles are
 written as QGIS QML documents into a ``layer_styles`` table, the convention desktop GIS use for
 styles kept inside a GeoPackage; a GIS that does not read it still gets the plain layers.
 """
@@ -14,21 +15,10 @@ import xml.etree.ElementTree as ET
 from collections.abc import Sequence
 from dataclasses import dataclass
 
-from mapper.features.contours import Band, Levels
+from mapper.features import colour_scale as cs
+from mapper.features.contours import Band
 from mapper.survey.store import to_utc_text, utc_now
 
-#: Diverging ramp anchors from -1 (most negative) to +1 (most positive), our own choice.
-RAMP: tuple[tuple[float, str], ...] = (
-    (-1.0, "#1b3a6b"),
-    (-0.6, "#3d6fae"),
-    (-0.3, "#8db4d9"),
-    (-0.08, "#d6e4f0"),
-    (0.0, "#f3f1ea"),
-    (0.08, "#f5dccb"),
-    (0.3, "#eba07a"),
-    (0.6, "#c9543a"),
-    (1.0, "#6e1419"),
-)
 #: Colours of the map's other things.
 OUTLINE_COLOR = "#222222"
 ASSET_COLOR = "#6b6b6b"
@@ -47,51 +37,14 @@ def _rgb(hex_color: str) -> tuple[int, int, int]:
     return int(h[0:2], 16), int(h[2:4], 16), int(h[4:6], 16)
 
 
-def _hex(rgb: Sequence[float]) -> str:
-    return "#" + "".join(f"{int(round(max(0, min(255, c)))):02x}" for c in rgb)
+def value_color(value_v_per_m: float, threshold_v_per_m: float) -> str:
+    """Colour of a field value on the action-level scale (:mod:`mapper.features.colour_scale`)."""
+    return cs.colour_hex(value_v_per_m, threshold_v_per_m)
 
 
-def ramp_color(t: float) -> str:
-    """Colour of a position on the diverging ramp, ``t`` in [-1, 1] (clipped), as ``#rrggbb``."""
-    t = max(-1.0, min(1.0, float(t)))
-    for (t0, c0), (t1, c1) in zip(RAMP[:-1], RAMP[1:], strict=True):
-        if t <= t1:
-            w = (t - t0) / (t1 - t0)
-            a, b = _rgb(c0), _rgb(c1)
-            return _hex([a[i] + w * (b[i] - a[i]) for i in range(3)])
-    return RAMP[-1][1]
-
-
-def _half_step(levels: Levels) -> float:
-    v = levels.values_v_per_m
-    return 0.5 * (min(b - a for a, b in zip(v[:-1], v[1:], strict=True)) if len(v) > 1 else max(abs(v[0]), 1.0))
-
-
-def ramp_scale(levels: Levels) -> float:
-    """The field magnitude mapped to the ends of the ramp, V/m: the largest |level| plus half a step."""
-    return max(abs(v) for v in levels.values_v_per_m) + _half_step(levels)
-
-
-def value_color(value_v_per_m: float, levels: Levels) -> str:
-    """Colour of a field value on the ramp scaled to ``levels``."""
-    return ramp_color(value_v_per_m / ramp_scale(levels))
-
-
-def band_value(lower: float, upper: float, levels: Levels) -> float:
-    """A representative value of a band (its middle; half a step beyond an open end), V/m."""
-    h = _half_step(levels)
-    if math.isinf(lower) and math.isinf(upper):
-        return 0.0
-    if math.isinf(lower):
-        return upper - h
-    if math.isinf(upper):
-        return lower + h
-    return 0.5 * (lower + upper)
-
-
-def band_colors(bands: Sequence[Band], levels: Levels) -> list[str]:
-    """One colour per band, from its representative value on the diverging ramp."""
-    return [value_color(band_value(b.lower_v_per_m, b.upper_v_per_m, levels), levels) for b in bands]
+def band_colors(bands: Sequence[Band], threshold_v_per_m: float) -> list[str]:
+    """One colour per contour band: that of the scale band holding it."""
+    return [cs.interval_hex(b.lower_v_per_m, b.upper_v_per_m, threshold_v_per_m) for b in bands]
 
 
 def text_color_on(hex_color: str) -> str:
@@ -188,34 +141,41 @@ def _single(root: ET.Element, kind: str, **sym) -> None:
     _symbol(symbols, "0", kind, **sym)
 
 
-def bands_qml(bands: Sequence[Band], levels: Levels) -> str:
-    """Bands filled by the diverging ramp, categorised on ``band_index``."""
+def bands_qml(bands: Sequence[Band], threshold_v_per_m: float) -> str:
+    """Bands filled with the action-level scale's colours, categorised on ``band_index``."""
     root, geom = _doc(2)
-    colors = band_colors(bands, levels)
+    colors = band_colors(bands, threshold_v_per_m)
     cats = [(str(i), b.label, {"color": c, "alpha": 235, "outline": c, "width_mm": 0.0, "outline_style": "no"})
             for i, (b, c) in enumerate(zip(bands, colors, strict=True))]
     _categorized(root, "band_index", cats, "fill")
     return _finish(root, geom)
 
 
-def readings_qml(levels: Levels) -> str:
-    """Readings as graded dots: ranges between the contour levels, coloured like the bands."""
+def readings_qml(threshold_v_per_m: float, unit: str) -> str:
+    """Readings as dots graded on the action-level scale (the same colours as the bands).
+
+    Parameters
+    ----------
+    threshold_v_per_m : float
+        Action level, V/m.
+    unit : str
+        Display unit of the range labels.
+    """
     root, geom = _doc(0)
     r = ET.SubElement(root, "renderer-v2", {"type": "graduatedSymbol", "attr": "value_v_per_m",
                                             "graduatedMethod": "GraduatedColor", "symbollevels": "0",
                                             "enableorderby": "0", "forceraster": "0"})
     ranges = ET.SubElement(r, "ranges")
     symbols = ET.SubElement(r, "symbols")
-    edges = (-OPEN_END_V_PER_M, *levels.values_v_per_m, OPEN_END_V_PER_M)
+    inner = cs.edges_v_per_m(threshold_v_per_m)
+    edges = (-OPEN_END_V_PER_M, *inner, OPEN_END_V_PER_M)
+    labels = [label for _, label in reversed(cs.legend_rows(threshold_v_per_m, unit))]
     for i, (lo, hi) in enumerate(zip(edges[:-1], edges[1:], strict=True)):
-        lo_open, hi_open = i == 0, i == len(edges) - 2
-        label = (f"<= {levels.label(hi)}" if lo_open else f"> {levels.label(lo)}" if hi_open
-                 else f"{levels.label(lo)} to {levels.label(hi)}")
         ET.SubElement(ranges, "range", {"symbol": str(i), "lower": f"{lo:.10g}", "upper": f"{hi:.10g}",
-                                        "label": label, "render": "true"})
-        value = band_value(-math.inf if lo_open else lo, math.inf if hi_open else hi, levels)
-        _symbol(symbols, str(i), "marker", value_color(value, levels), outline="#202020",
-                width_mm=0.2, size_mm=2.2)
+                                        "label": labels[i], "render": "true"})
+        colour = cs.interval_hex(-math.inf if i == 0 else lo, math.inf if i == len(edges) - 2 else hi,
+                                 threshold_v_per_m)
+        _symbol(symbols, str(i), "marker", colour, outline="#202020", width_mm=0.2, size_mm=2.2)
     return _finish(root, geom)
 
 
@@ -320,12 +280,8 @@ def write_layer_styles(conn: sqlite3.Connection, styles: Sequence[LayerStyle]) -
 
 __all__ = [
     "LAYER_STYLES_DDL",
-    "RAMP",
     "LayerStyle",
     "band_colors",
-    "band_value",
-    "ramp_color",
-    "ramp_scale",
     "text_color_on",
     "value_color",
     "write_layer_styles",

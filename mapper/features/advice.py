@@ -35,6 +35,7 @@ from mapper.features.sources import source_records
 from mapper.field.model import FieldGrid
 from mapper.readings.model import CorrectedReading
 from mapper.site.model import Site
+from mapper.units import format_field
 
 #: A gap is "large" when it exceeds this many typical spacings.
 GAP_FACTOR = 1.5
@@ -117,6 +118,7 @@ def advise_sampling(
     p_window: tuple[float, float] = (0.2, 0.8),
     min_separation_m: float | None = None,
     planned: Sequence[Any] | None = None,
+    unit: str = "V/m",
 ) -> tuple[Suggestion, ...]:
     """Rank places to measure next.
 
@@ -140,6 +142,8 @@ def advise_sampling(
     planned : sequence, optional
         Planned grid points to snap to: objects with ``label``, ``x``, ``y`` attributes, or
         ``(label, x, y)`` tuples, metres.
+    unit : str
+        Display unit of the values in each suggestion's sentence (``why``).
 
     Returns
     -------
@@ -246,7 +250,7 @@ def advise_sampling(
         if reason == "source":
             why = source_why[k]
         elif reason == "decision":
-            why = f"P(|E| >= t) = {p_k:.2f} with standard deviation {s_k:.3g} V/m"
+            why = f"P(|E| >= t) = {p_k:.2f} with standard deviation {format_field(s_k, unit, 3)}"
         else:
             why = f"{g_k:.2f} m from the nearest reading (usual spacing {spacing:.2f} m)"
         out.append(Suggestion(len(out) + 1, x, y, reason, why, float(ez[k]), s_k, p_k, g_k, label))

@@ -19,7 +19,7 @@ from mapper.errors import MapperError
 from mapper.features._grid import clip_lines, extend_grid, filled_region, iso_line, polygonal
 from mapper.field.model import FieldGrid
 from mapper.nice import nice_ceiling
-from mapper.units import canonical_unit, from_si, to_si
+from mapper.units import canonical_unit, format_field, from_si, to_si
 
 #: Mantissas of nice steps.
 
@@ -64,8 +64,8 @@ class Levels:
         return tuple(from_si(v, self.unit) for v in self.values_v_per_m)
 
     def label(self, value_v_per_m: float) -> str:
-        """A level formatted in the display unit, e.g. ``"2.5 kV/m"``."""
-        return f"{from_si(value_v_per_m, self.unit):.6g} {self.unit}"
+        """A level formatted in the display unit, e.g. ``"4.921 kV/m"`` (4 significant digits)."""
+        return format_field(value_v_per_m, self.unit, 4)
 
 
 @dataclass(frozen=True)

@@ -15,6 +15,7 @@ import numpy as np
 
 from mapper.features.advice import Suggestion, advise_sampling
 from mapper.features.cautions import CAUTIONS, LIMITS_ARE_DEFAULTS
+from mapper.features.colour_scale import scale_levels
 from mapper.features.contours import (
     Band,
     IsoLine,
@@ -22,7 +23,6 @@ from mapper.features.contours import (
     bands,
     field_range,
     iso_lines,
-    nice_levels,
 )
 from mapper.features.hotspots import (
     Hotspot,
@@ -146,7 +146,6 @@ def analyse(
     *,
     unit: str = "V/m",
     levels: Levels | None = None,
-    level_count: int = 8,
     rules: Sequence[KeepAwayRule] = DEFAULT_RULES,
     planned: Sequence[Any] | None = None,
     advice_count: int = 10,
@@ -166,9 +165,8 @@ def analyse(
     unit : str
         Display unit for levels and labels.
     levels : Levels, optional
-        Contour levels; default :func:`~mapper.features.contours.nice_levels` over the field range.
-    level_count : int
-        Wanted number of intervals for automatic levels.
+        Contour levels; default the edges of the action-level colour scale inside the field range
+        (:func:`~mapper.features.colour_scale.scale_levels`), so every map bands alike.
     rules : sequence of KeepAwayRule
         Keep-away rules to check; default ANSI/ESD S20.20 (1999 and 2014 texts).
     planned : sequence, optional
@@ -184,7 +182,7 @@ def analyse(
     unit = canonical_unit(unit)
     if levels is None:
         lo, hi = field_range(grid)
-        levels = nice_levels(lo, hi, unit=unit, count=level_count)
+        levels = Levels(scale_levels(t, lo, hi), unit)
     hotspots = find_hotspots(grid, site, t, readings)
     probable = probable_exceedance(grid, site, t, hotspots)
     has_std = bool(np.isfinite(np.asarray(grid.std, dtype=float)[grid.inside]).any())
@@ -201,7 +199,7 @@ def analyse(
         probability_available=has_std,
         violations=check_keep_away(grid, site, rules),
         rules=tuple(rules),
-        advice=advise_sampling(grid, site, readings, t, count=advice_count, planned=planned),
+        advice=advise_sampling(grid, site, readings, t, count=advice_count, planned=planned, unit=unit),
         unmapped_exceedances=exceedances_outside(hotspots, readings, t),
     )
 

@@ -21,15 +21,13 @@ from dataclasses import dataclass
 import numpy as np
 from shapely.geometry import Polygon
 
+from mapper.defaults import DEFAULT_THRESHOLD_V_PER_M
 from mapper.features._grid import extend_grid, nodes_in
 from mapper.features.cautions import LIMITS_ARE_DEFAULTS
 from mapper.features.hotspots import signed_regions
 from mapper.field.model import FieldGrid
 from mapper.site.model import SENSITIVE_KINDS, Asset, Site
 from mapper.units import INCH_M
-
-#: Default action level: 125 V/in = 4921.26 V/m (ANSI/ESD S20.20-2014 cl. 8.3.1 level).
-DEFAULT_THRESHOLD_V_PER_M = 125.0 / INCH_M
 
 
 @dataclass(frozen=True)

@@ -7,6 +7,7 @@ from scipy.spatial import cKDTree
 
 from mapper.errors import MapperError
 from mapper.field import checks
+from mapper.field.estimator import check_fitted
 from mapper.field.repeats import MERGE_TOL_M, merge_repeats
 
 _BATCH = 65536
@@ -26,14 +27,21 @@ class IDW:
     """
 
     def __init__(self, power: float = 2.0, neighbors: int = 16, *, merge_tol_m: float = MERGE_TOL_M) -> None:
-        self.power = checks.positive(power, "IDW power", "IDW")
-        if isinstance(neighbors, bool) or int(neighbors) < 1:
-            raise MapperError(f"neighbors must be an integer >= 1, got {neighbors!r}", where="IDW")
-        self.neighbors = int(neighbors)
+        # Settings stored as given (checked in fit): the estimator contract of mapper.field.estimator.
+        self.power = power
+        self.neighbors = neighbors
         self.merge_tol_m = merge_tol_m
+
+    def _check_settings(self) -> None:
+        """Refuse settings that cannot work, naming them (called by :meth:`fit`)."""
+        checks.positive(self.power, "IDW power", "IDW")
+        n = self.neighbors
+        if isinstance(n, bool) or not isinstance(n, int | np.integer) or n < 1:
+            raise MapperError(f"neighbors must be an integer >= 1, got {n!r}", where="IDW")
 
     def fit(self, xy, values) -> IDW:
         """Merge repeats and index the positions; returns self."""
+        self._check_settings()
         xy, z = checks.readings(xy, values, "IDW.fit")
         self.merged_ = merge_repeats(xy, z, self.merge_tol_m)
         self.xy_, self.values_ = self.merged_.xy, self.merged_.values
@@ -57,8 +65,7 @@ class IDW:
 
     def predict(self, targets) -> tuple[np.ndarray, np.ndarray]:
         """Estimates (V/m) at ``targets`` (m, 2) metres; std is NaN (IDW gives none)."""
-        if not hasattr(self, "tree_"):
-            raise MapperError("call fit(xy, values) before predict", where="IDW")
+        check_fitted(self, "predict")
         t = checks.points(targets, "IDW.predict", "targets")
         k = min(self.neighbors, self.xy_.shape[0])
         est = np.concatenate(
@@ -68,8 +75,7 @@ class IDW:
 
     def loo(self, at: np.ndarray | None = None) -> tuple[np.ndarray, None]:
         """Leave-one-out errors (estimate minus reading, V/m) at merged positions ``at``."""
-        if not hasattr(self, "tree_"):
-            raise MapperError("call fit(xy, values) before loo", where="IDW")
+        check_fitted(self, "loo")
         n = self.xy_.shape[0]
         if n < 2:
             raise MapperError("leave-one-out needs at least 2 distinct positions", where="IDW.loo")

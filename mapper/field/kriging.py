@@ -27,6 +27,7 @@ from scipy.spatial.distance import cdist
 
 from mapper.errors import MapperError
 from mapper.field import checks
+from mapper.field.estimator import check_fitted
 from mapper.field.linalg import (
     chol_inverse_rows,
     cholesky_upper,
@@ -58,26 +59,27 @@ class _Kriging:
         share_m: float | None = None,
         merge_tol_m: float = MERGE_TOL_M,
     ) -> None:
-        where = type(self).__name__
-        if variogram is not None and not isinstance(variogram, Variogram):
-            raise MapperError(
-                f"variogram must be a Variogram (or None to fit one), got {type(variogram).__name__}",
-                where=where,
-            )
-        if neighbors is not None:
-            if isinstance(neighbors, bool) or not isinstance(neighbors, int | np.integer) or neighbors < 2:
-                raise MapperError(
-                    f"neighbors must be an integer >= 2 or None (global solve), got {neighbors!r}",
-                    where=where,
-                )
-            neighbors = int(neighbors)
-        if share_m is not None:
-            share_m = checks.positive(share_m, "share_m (side of a shared-neighbourhood square)", where)
+        # Settings stored as given (checked in fit): the estimator contract of mapper.field.estimator.
         self.variogram = variogram
         self.neighbors = neighbors
-        self.nugget_as_error = bool(nugget_as_error)
+        self.nugget_as_error = nugget_as_error
         self.share_m = share_m
-        self.merge_tol_m = checks.positive(merge_tol_m, "merge_tol_m", where)
+        self.merge_tol_m = merge_tol_m
+
+    def _check_settings(self) -> None:
+        """Refuse settings that cannot work, naming them (called by :meth:`fit`)."""
+        where = type(self).__name__
+        if self.variogram is not None and not isinstance(self.variogram, Variogram):
+            raise MapperError(
+                f"variogram must be a Variogram (or None to fit one), got {type(self.variogram).__name__}",
+                where=where,
+            )
+        n = self.neighbors
+        if n is not None and (isinstance(n, bool) or not isinstance(n, int | np.integer) or n < 2):
+            raise MapperError(f"neighbors must be an integer >= 2 or None (global solve), got {n!r}", where=where)
+        if self.share_m is not None:
+            checks.positive(self.share_m, "share_m (side of a shared-neighbourhood square)", where)
+        checks.positive(self.merge_tol_m, "merge_tol_m", where)
 
     # ------------------------------------------------------------------------------ fitting
     def _drift(self, xt: np.ndarray, centre: np.ndarray, scale: float) -> np.ndarray:
@@ -101,6 +103,7 @@ class _Kriging:
         -------
         self
         """
+        self._check_settings()
         where = f"{type(self).__name__}.fit"
         xy, z = checks.readings(xy, values, where, minimum=1)
         merged = merge_repeats(xy, z, self.merge_tol_m)
@@ -137,8 +140,7 @@ class _Kriging:
         return self
 
     def _check_fitted(self, what: str) -> None:
-        if not hasattr(self, "xy_"):
-            raise MapperError(f"call fit(xy, values) before {what}", where=type(self).__name__)
+        check_fitted(self, what)
 
     def _factor_global(self) -> None:
         vg, xt, z = self.variogram_, self.xt_, self.values_
@@ -574,8 +576,12 @@ class UniversalKriging(_Kriging):
         share_m: float | None = None,
         merge_tol_m: float = MERGE_TOL_M,
     ) -> None:
-        self.drift = checks.choose(drift, DRIFTS, "drift", "UniversalKriging")
+        self.drift = drift
         super().__init__(
             variogram, neighbors, nugget_as_error=nugget_as_error, share_m=share_m,
             merge_tol_m=merge_tol_m,
         )
+
+    def _check_settings(self) -> None:
+        checks.choose(self.drift, DRIFTS, "drift", "UniversalKriging")
+        super()._check_settings()

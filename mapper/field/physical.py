@@ -44,6 +44,7 @@ from shapely.geometry.base import BaseGeometry
 
 from mapper.errors import MapperError
 from mapper.field import checks
+from mapper.field.estimator import check_fitted
 from mapper.field.kriging import OrdinaryKriging
 from mapper.field.repeats import MERGE_TOL_M, merge_repeats
 from mapper.physics.images import unit_kernel
@@ -285,14 +286,21 @@ class PhysicalModel:
 
     def __init__(self, seeds=(), bounds=None, *, search: bool = True, max_sources: int = MAX_SOURCES,
                  merge_tol_m: float = MERGE_TOL_M) -> None:
-        self.seeds = tuple(seeds)
+        # Settings stored as given (checked in fit): the estimator contract of mapper.field.estimator.
+        self.seeds = seeds
+        self.bounds = bounds
+        self.search = search
+        self.max_sources = max_sources
+        self.merge_tol_m = merge_tol_m
+
+    def _check_settings(self) -> None:
+        """Refuse settings that cannot work, naming them (called by :meth:`fit`)."""
         for s in self.seeds:
             if not isinstance(s, SourceSeed):
                 raise MapperError(f"seeds must be SourceSeed, got {type(s).__name__}", where="PhysicalModel")
-        self.bounds = bounds
-        self.search = bool(search)
-        self.max_sources = int(max_sources)
-        self.merge_tol_m = merge_tol_m
+        m = self.max_sources
+        if isinstance(m, bool) or not isinstance(m, int | np.integer) or m < 1:
+            raise MapperError(f"max_sources must be an integer >= 1, got {m!r}", where="PhysicalModel")
 
     # ------------------------------------------------------------------ fitting
     def fit(self, xy, values, heights_m=None) -> PhysicalModel:
@@ -313,6 +321,7 @@ class PhysicalModel:
         self
         """
         where = "PhysicalModel.fit"
+        self._check_settings()
         self.__dict__.pop("beta_", None)
         xy, v = checks.readings(xy, values, where, minimum=1)
         hz = np.full(v.shape, DEFAULT_METER_HEIGHT_M) if heights_m is None else np.asarray(heights_m, float)
@@ -565,8 +574,7 @@ class PhysicalModel:
         est, std : ndarray, shape (m,)
             V/m; the standard deviation is that of a new reading there.
         """
-        if not hasattr(self, "shapes_"):
-            raise MapperError("call fit(xy, values) before predict", where="PhysicalModel")
+        check_fitted(self, "predict")
         t = checks.points(targets, "PhysicalModel.predict", "targets")
         hz = self.height_m_ if height_m is None else float(height_m)
         est = np.empty(t.shape[0])
@@ -598,8 +606,7 @@ class PhysicalModel:
         error, std : ndarray, shape (m,)
             Left-out estimate minus reading, and its standard deviation, V/m.
         """
-        if not hasattr(self, "shapes_"):
-            raise MapperError("call fit(xy, values) before loo", where="PhysicalModel")
+        check_fitted(self, "loo")
         ids = np.arange(self.values_.shape[0]) if at is None else np.asarray(at, dtype=np.int64)
         h = self.leverage_[ids]
         r = self.resid_[ids]

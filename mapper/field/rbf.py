@@ -14,6 +14,7 @@ from scipy.spatial.distance import cdist
 
 from mapper.errors import MapperError
 from mapper.field import checks
+from mapper.field.estimator import check_fitted
 from mapper.field.linalg import solve_batched
 from mapper.field.repeats import MERGE_TOL_M, merge_repeats
 
@@ -70,30 +71,37 @@ class RBF:
         *,
         merge_tol_m: float = MERGE_TOL_M,
     ) -> None:
-        self.kernel = checks.choose(kernel, KERNELS, "RBF kernel", "RBF")
-        self.degree = KERNELS[self.kernel]
-        if smoothing is not None:
-            smoothing = checks.positive(smoothing, "smoothing", "RBF", allow_zero=True)
+        # Settings stored as given (checked in fit): the estimator contract of mapper.field.estimator.
+        self.kernel = kernel
         self.smoothing = smoothing
-        if neighbors is not None and (isinstance(neighbors, bool) or int(neighbors) < 3):
-            raise MapperError(f"neighbors must be an integer >= 3 or None, got {neighbors!r}", where="RBF")
-        self.neighbors = None if neighbors is None else int(neighbors)
+        self.neighbors = neighbors
         self.merge_tol_m = merge_tol_m
+
+    def _check_settings(self) -> None:
+        """Refuse settings that cannot work, naming them; sets ``kernel_`` and ``degree_``."""
+        self.kernel_ = checks.choose(self.kernel, KERNELS, "RBF kernel", "RBF")
+        self.degree_ = KERNELS[self.kernel_]
+        if self.smoothing is not None:
+            checks.positive(self.smoothing, "smoothing", "RBF", allow_zero=True)
+        n = self.neighbors
+        if n is not None and (isinstance(n, bool) or not isinstance(n, int | np.integer) or n < 3):
+            raise MapperError(f"neighbors must be an integer >= 3 or None, got {n!r}", where="RBF")
 
     def fit(self, xy, values) -> RBF:
         """Merge repeats, choose the smoothing and build the interpolant; returns self."""
         where = "RBF.fit"
+        self._check_settings()
         xy, z = checks.readings(xy, values, where)
         merged = merge_repeats(xy, z, self.merge_tol_m)
-        q = (self.degree + 1) * (self.degree + 2) // 2
+        q = (self.degree_ + 1) * (self.degree_ + 2) // 2
         if merged.xy.shape[0] < max(q + 1, 3):
             raise MapperError(
-                f"RBF ({self.kernel}) needs at least {max(q + 1, 3)} distinct positions, got "
+                f"RBF ({self.kernel_}) needs at least {max(q + 1, 3)} distinct positions, got "
                 f"{merged.xy.shape[0]}",
                 where=where,
             )
-        if self.degree >= 1:
-            checks.not_collinear(merged.xy, where, f"RBF ({self.kernel}, with a plane term)")
+        if self.degree_ >= 1:
+            checks.not_collinear(merged.xy, where, f"RBF ({self.kernel_}, with a plane term)")
         self.merged_ = merged
         self.xy_, self.values_ = merged.xy, merged.values
         n = self.xy_.shape[0]
@@ -108,14 +116,14 @@ class RBF:
             self.smoothing_, self.smoothing_table_ = self.smoothing, ()
         self.interp_ = RBFInterpolator(
             self.xy_, self.values_, neighbors=self.neighbors if self.local_ else None,
-            smoothing=self.smoothing_, kernel=self.kernel, degree=self.degree,
+            smoothing=self.smoothing_, kernel=self.kernel_, degree=self.degree_,
         )
         return self
 
     # ------------------------------------------------------------------ smoothing and LOO
     def _scale_kernel(self) -> float:
         sub = self.xy_[:: max(1, self.xy_.shape[0] // 500)]
-        return float(np.mean(np.abs(kernel(self.kernel, cdist(sub, sub))))) or 1.0
+        return float(np.mean(np.abs(kernel(self.kernel_, cdist(sub, sub))))) or 1.0
 
     def _candidates(self) -> list[float]:
         base = self._scale_kernel()
@@ -124,10 +132,10 @@ class RBF:
     def _eig(self):
         """Eigen-decomposition of the kernel on the polynomial null space (cached)."""
         if getattr(self, "_eig_cache", None) is None:
-            p = _monomials((self.xy_ - self.shift_) / self.scale_, self.degree)
+            p = _monomials((self.xy_ - self.shift_) / self.scale_, self.degree_)
             qmat, _ = np.linalg.qr(p, mode="complete")
             q2 = qmat[:, p.shape[1]:]
-            k = kernel(self.kernel, cdist(self.xy_, self.xy_))
+            k = kernel(self.kernel_, cdist(self.xy_, self.xy_))
             lam, v = np.linalg.eigh(q2.T @ k @ q2)
             self._eig_cache = (lam, q2 @ v)
         return self._eig_cache
@@ -155,18 +163,18 @@ class RBF:
             # scipy shifts and scales each neighbourhood for the polynomial; the solution is the same.
             centre = pts.mean(axis=1, keepdims=True)
             scale = np.maximum(np.max(np.abs(pts - centre), axis=(1, 2), keepdims=True), 1e-12)
-            pm = _monomials((pts - centre) / scale, self.degree)
+            pm = _monomials((pts - centre) / scale, self.degree_)
             q = pm.shape[-1]
             d = np.sqrt(np.sum((pts[:, :, None, :] - pts[:, None, :, :]) ** 2, axis=-1))
             a = np.zeros((ids.shape[0], k + q, k + q))
-            a[:, :k, :k] = kernel(self.kernel, d) + smoothing * np.eye(k)
+            a[:, :k, :k] = kernel(self.kernel_, d) + smoothing * np.eye(k)
             a[:, :k, k:] = pm
             a[:, k:, :k] = np.swapaxes(pm, 1, 2)
             rhs = np.zeros((ids.shape[0], k + q))
             rhs[:, :k] = z[idx]
             coef = solve_batched(a, rhs)
-            kt = kernel(self.kernel, np.sqrt(np.sum((pts - t[:, None, :]) ** 2, axis=-1)))
-            pt = _monomials((t[:, None, :] - centre) / scale, self.degree)[:, 0, :]
+            kt = kernel(self.kernel_, np.sqrt(np.sum((pts - t[:, None, :]) ** 2, axis=-1)))
+            pt = _monomials((t[:, None, :] - centre) / scale, self.degree_)[:, 0, :]
             est = np.einsum("bk,bk->b", coef[:, :k], kt) + np.einsum("bq,bq->b", coef[:, k:], pt)
             err[s:s + _LOCAL_BATCH] = est - z[ids]
         return err
@@ -196,8 +204,7 @@ class RBF:
         k nearest other readings when ``neighbors`` is set. ``at`` defaults to all positions.
         The second value is None (RBF gives no standard deviation).
         """
-        if not hasattr(self, "xy_"):
-            raise MapperError("call fit(xy, values) before loo", where="RBF")
+        check_fitted(self, "loo")
         n = self.xy_.shape[0]
         ids = np.arange(n) if at is None else np.asarray(at)
         if self.local_:
@@ -208,10 +215,10 @@ class RBF:
 
     def _loo_direct(self, smoothing: float) -> np.ndarray:
         # Same closed form from an explicit inverse of the bordered system (one n^3 step).
-        p = _monomials((self.xy_ - self.shift_) / self.scale_, self.degree)
+        p = _monomials((self.xy_ - self.shift_) / self.scale_, self.degree_)
         n, q = p.shape
         a = np.zeros((n + q, n + q))
-        a[:n, :n] = kernel(self.kernel, cdist(self.xy_, self.xy_)) + smoothing * np.eye(n)
+        a[:n, :n] = kernel(self.kernel_, cdist(self.xy_, self.xy_)) + smoothing * np.eye(n)
         a[:n, n:] = p
         a[n:, :n] = p.T
         top = np.linalg.inv(a)[:n, :n]
@@ -219,8 +226,7 @@ class RBF:
 
     def predict(self, targets) -> tuple[np.ndarray, np.ndarray]:
         """Interpolated values (V/m) at ``targets`` (m, 2) metres; std is NaN (none given)."""
-        if not hasattr(self, "interp_"):
-            raise MapperError("call fit(xy, values) before predict", where="RBF")
+        check_fitted(self, "predict")
         t = checks.points(targets, "RBF.predict", "targets")
         est = self.interp_(t)
         return est, np.full(t.shape[0], np.nan)

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import csv
+import io
 import math
 from collections.abc import Sequence
 from dataclasses import dataclass
@@ -12,15 +13,18 @@ from pathlib import Path
 import numpy as np
 import shapely
 
+from mapper.atomic_file import atomic_path
 from mapper.errors import MapperError
-from mapper.readings.model import READING_KINDS
+from mapper.readings.model import READING_KINDS, NewReading
 from mapper.site.model import Site
-from mapper.survey.store import NewReading
-from mapper.textfile import open_utf8, read_utf8
+from mapper.textfile import read_utf8
 from mapper.units import check_field, parse_field, parse_number, to_physics_sign
 
 #: Readings this far outside the outline are still accepted (meter held over a wall line), metres.
 OUTLINE_TOLERANCE_M = 0.05
+#: Years a reading's time may fall in (UTC); our own choice, far enough from year 1 and 9999 that
+#: local times and time differences never overflow.
+FIRST_YEAR, LAST_YEAR = 1900, 2999
 
 
 @dataclass(frozen=True)
@@ -74,7 +78,8 @@ def parse_time(text: str, tz: tzinfo | None = None) -> datetime:
     Raises
     ------
     MapperError
-        Empty text, or text that is not ISO 8601 (the message shows the text and an example).
+        Empty text, text that is not ISO 8601 (the message shows the text and an example), or a
+        time outside the years :data:`FIRST_YEAR`-:data:`LAST_YEAR` in UTC.
     """
     stripped = text.strip()
     if not stripped:
@@ -87,7 +92,13 @@ def parse_time(text: str, tz: tzinfo | None = None) -> datetime:
         ) from None
     if moment.tzinfo is None:
         moment = moment.replace(tzinfo=tz or UTC)
-    return moment.astimezone(UTC)
+    try:
+        moment = moment.astimezone(UTC)
+    except OverflowError:  # e.g. 0001-01-01T00:00+01:00 is before year 1 in UTC
+        moment = None
+    if moment is None or not FIRST_YEAR <= moment.year <= LAST_YEAR:
+        raise MapperError(f"{stripped!r} is outside the years {FIRST_YEAR}-{LAST_YEAR} accepted for a reading")
+    return moment
 
 
 def site_xy_from_lonlat(site: Site, lon: np.ndarray, lat: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
@@ -99,6 +110,21 @@ def site_xy_from_lonlat(site: Site, lon: np.ndarray, lat: np.ndarray) -> tuple[n
     transformer = Transformer.from_crs("EPSG:4326", site.georef.crs, always_xy=True)
     e, n = transformer.transform(np.asarray(lon, float), np.asarray(lat, float))
     return site.georef.inverse(e, n)
+
+
+#: A row outside the site whose lat and lon, swapped, lie within this of the site's centre (degrees)
+#: gets a "did you swap lon and lat?" hint (our choice: about 50 km).
+SWAP_HINT_DEG = 0.5
+
+
+def site_lonlat_centre(site: Site) -> tuple[float, float]:
+    """WGS 84 lon/lat (degrees) of the site outline's centroid, through its georeference."""
+    from pyproj import Transformer
+
+    c = site.outline.centroid
+    e, n = site.georef.forward(np.array([c.x]), np.array([c.y]))
+    lon, lat = Transformer.from_crs(site.georef.crs, "EPSG:4326", always_xy=True).transform(e, n)
+    return float(np.asarray(lon).ravel()[0]), float(np.asarray(lat).ravel()[0])
 
 
 def parse_readings_csv(
@@ -140,14 +166,10 @@ def parse_readings_csv(
     path = Path(path)
     if not path.exists():
         raise MapperError("file not found", where=str(path))
-    text = read_utf8(path, "readings file")
-    # a short row reads as empty cells, so the missing column is named
-    reader = csv.DictReader(text.splitlines(), restval="")
-    fields = [f.strip() for f in (reader.fieldnames or [])]
+    fields, records = read_csv_records(path, "readings file")
     if not fields:
         raise MapperError("empty file; expected a header row such as x,y,value,unit", where=str(path))
     _check_header(fields, path)
-    reader.fieldnames = fields
     has_xy = {"x", "y"} <= set(fields)
     has_ll = {"lon", "lat"} <= set(fields)
     if not (has_xy or has_ll):
@@ -162,27 +184,30 @@ def parse_readings_csv(
     shapely.prepare(outline)
     good: list[NewReading] = []
     rejected: list[RejectedRow] = []
-    raw_rows = list(reader)
     lonlat_xy = None
     if has_ll and not has_xy:
-        lon = np.array([_float_or_nan(r.get("lon")) for r in raw_rows])
-        lat = np.array([_float_or_nan(r.get("lat")) for r in raw_rows])
+        lon = np.array([_degrees_or_nan(r.get("lon"), 180.0) for _, r in records])
+        lat = np.array([_degrees_or_nan(r.get("lat"), 90.0) for _, r in records])
         try:
-            lonlat_xy = site_xy_from_lonlat(site, lon, lat)
+            with np.errstate(all="ignore"):  # a pole or a far longitude projects to inf: refused per row
+                lonlat_xy = site_xy_from_lonlat(site, lon, lat)
         except MapperError as exc:
             raise MapperError(exc.message, where=f"{path}:1") from None
-    for index, row in enumerate(raw_rows):
-        line = index + 2
+    swapped_xy = None  # the site's centre in lon/lat, found when a row falls outside
+    for index, (line, row) in enumerate(records):
         column = ""
         try:
             if None in row:
                 raise _RowError("", f"{len(row[None]) + len(fields)} fields, header has {len(fields)}")
             if lonlat_xy is not None:
-                column = "lon"
-                for name in ("lon", "lat"):
+                for name, limit in (("lon", 180.0), ("lat", 90.0)):
                     column = name
-                    parse_number(row[name])
+                    degrees = parse_number(row[name])
+                    if not -limit <= degrees <= limit:
+                        raise _RowError(name, f"{name} {degrees:g} is outside -{limit:g}..{limit:g} degrees")
                 x, y = float(lonlat_xy[0][index]), float(lonlat_xy[1][index])
+                if not (math.isfinite(x) and math.isfinite(y)):
+                    raise _RowError("lat", "this lon/lat cannot be placed by the site's georeference")
             else:
                 column = "x"
                 x = parse_number(row["x"])
@@ -190,7 +215,15 @@ def parse_readings_csv(
                 y = parse_number(row["y"])
             column = "x" if lonlat_xy is None else "lon"
             if outline.distance(shapely.Point(x, y)) > OUTLINE_TOLERANCE_M:
-                raise _RowError(column, f"position ({x:.2f}, {y:.2f}) m is outside the site outline")
+                hint = ""
+                if lonlat_xy is not None:
+                    if swapped_xy is None:
+                        swapped_xy = site_lonlat_centre(site)
+                    c_lon, c_lat = swapped_xy
+                    near_swapped = abs(lat[index] - c_lon) < SWAP_HINT_DEG and abs(lon[index] - c_lat) < SWAP_HINT_DEG
+                    if near_swapped:
+                        hint = "; did you swap lon and lat? (swapped, it lies at the site)"
+                raise _RowError(column, f"position ({x:.2f}, {y:.2f}) m is outside the site outline{hint}")
             column = "value"
             row_unit = (row.get("unit") or "").strip() or unit
             value, value_unit, si = parse_field(row["value"], row_unit)
@@ -224,7 +257,7 @@ def parse_readings_csv(
                     time=time,
                     height_m=height,
                     meter_id=meter,
-                    note=(row.get("note") or "").strip(),
+                    note=_note(row.get("note")),
                 )
             )
         except (MapperError, _RowError) as exc:
@@ -243,7 +276,7 @@ def write_rejected(path: str | Path, rejected: Sequence[RejectedRow]) -> Path:
     path = Path(path)
     out = path.with_name(path.stem + ".rejected.csv")
     columns = ["line", "reason"] + sorted({k for r in rejected for k in r.row if k is not None})
-    with out.open("w", newline="", encoding="utf-8") as handle:
+    with atomic_path(out) as tmp, open(tmp, "w", newline="", encoding="utf-8") as handle:
         writer = csv.DictWriter(handle, fieldnames=columns, extrasaction="ignore")
         writer.writeheader()
         for r in rejected:
@@ -275,12 +308,58 @@ class _RowError(Exception):
         super().__init__(message)
 
 
-def _float_or_nan(text: str | None) -> float:
+def _degrees_or_nan(text: str | None, limit: float) -> float:
+    """A longitude or latitude as :func:`parse_number` reads it, NaN when bad (refused per row)."""
     try:
-        value = float(text) if text is not None else math.nan
-    except ValueError:
+        value = parse_number(text or "")
+    except MapperError:
         return math.nan
-    return value if math.isfinite(value) else math.nan
+    return value if -limit <= value <= limit else math.nan
+
+
+def _note(text: str | None) -> str:
+    """A note as written (line breaks and all); a NUL, which GIS formats cut text at, is refused."""
+    text = text or ""
+    if "\x00" in text:
+        raise _RowError("note", "note holds a NUL character (U+0000), which GeoPackage would cut it at; remove it")
+    return text
+
+
+def read_csv_records(path: Path, what: str) -> tuple[list[str], list[tuple[int, dict]]]:
+    """A CSV file's header (names stripped) and its rows, each with the physical line it starts on.
+
+    A quoted cell may span lines, so a row's line is counted in the file, not in rows. Blank lines
+    are skipped; a short row reads as empty cells and a long one keeps the extra cells under the
+    key ``None`` (as :class:`csv.DictReader` does).
+
+    Raises
+    ------
+    MapperError
+        When the file is not UTF-8 text or not readable as CSV (e.g. a cell longer than the
+        csv module's field limit, typically an opening quote that is never closed).
+    """
+    reader = csv.reader(io.StringIO(read_utf8(path, what), newline=""))
+    fields: list[str] = []
+    records: list[tuple[int, dict]] = []
+    start = 1
+    try:
+        for cells in reader:
+            if not fields:
+                fields = [f.strip() for f in cells]
+            elif cells:
+                row = dict(zip(fields, cells, strict=False))
+                row.update((name, "") for name in fields[len(cells):])
+                if len(cells) > len(fields):
+                    row[None] = cells[len(fields):]
+                records.append((start, row))
+            start = reader.line_num + 1
+    except csv.Error as exc:
+        reason = str(exc)
+        if "field limit" in reason:
+            reason = (f"a cell is longer than {csv.field_size_limit()} characters, the most a CSV cell may "
+                      "hold; is a quote opened and never closed?")
+        raise MapperError(f"not readable as CSV: {reason}", where=f"{path}:{start}") from None
+    return fields, records
 
 
 @dataclass(frozen=True)
@@ -300,7 +379,10 @@ def is_conditions_csv(path: str | Path) -> bool:
     if Path(path).is_dir():
         raise MapperError("is a folder, not a CSV file", where=str(path))
     text = read_utf8(path, "CSV file")
-    header = {h.strip() for h in (next(csv.reader(text.splitlines()), []) or [])}
+    try:
+        header = {h.strip() for h in (next(csv.reader(text.splitlines()), []) or [])}
+    except csv.Error:
+        return False  # not a conditions file; the readings import names the problem
     return "value" not in header and bool({"rh_percent", "temperature_c"} & header)
 
 
@@ -312,24 +394,25 @@ def parse_conditions_csv(path: str | Path, tz: tzinfo | None = None) -> list[Con
     """
     path = Path(path)
     rows = []
-    with open_utf8(path, "conditions file") as handle:
-        reader = csv.DictReader(handle, restval="")
-        _check_header([f.strip() for f in reader.fieldnames or []], path)
-        for line, row in enumerate(reader, start=2):
-            column = "time"
-            try:
-                time = parse_time(row["time"], tz) if (row.get("time") or "").strip() else None
-                column = "rh_percent"
-                rh = parse_number(row["rh_percent"]) if (row.get("rh_percent") or "").strip() else None
-                if rh is not None and not 0 <= rh <= 100:
-                    raise MapperError(f"relative humidity {rh} % is outside 0-100 %")
-                column = "temperature_c"
-                temp = parse_number(row["temperature_c"]) if (row.get("temperature_c") or "").strip() else None
-                if temp is not None and not -60 <= temp <= 80:
-                    raise MapperError(f"temperature {temp} °C is outside -60..80 °C")
-            except MapperError as exc:
-                raise MapperError(exc.message, where=f"{path}:{line}: {column}") from None
-            rows.append(ConditionRow(time, rh, temp, (row.get("note") or "").strip()))
+    fields, records = read_csv_records(path, "conditions file")
+    _check_header(fields, path)
+    for line, row in records:
+        column = "time"
+        try:
+            time = parse_time(row["time"], tz) if (row.get("time") or "").strip() else None
+            column = "rh_percent"
+            rh = parse_number(row["rh_percent"]) if (row.get("rh_percent") or "").strip() else None
+            if rh is not None and not 0 <= rh <= 100:
+                raise MapperError(f"relative humidity {rh} % is outside 0-100 %")
+            column = "temperature_c"
+            temp = parse_number(row["temperature_c"]) if (row.get("temperature_c") or "").strip() else None
+            if temp is not None and not -60 <= temp <= 80:
+                raise MapperError(f"temperature {temp} °C is outside -60..80 °C")
+            column = "note"
+            note = _note(row.get("note"))
+        except (MapperError, _RowError) as exc:
+            raise MapperError(exc.message, where=f"{path}:{line}: {column}") from None
+        rows.append(ConditionRow(time, rh, temp, note))
     if not rows:
         raise MapperError("no data rows", where=str(path))
     return rows

@@ -336,7 +336,7 @@ def to_new_readings(
     note: str = "",
     outline_tolerance_m: float = 0.05,
 ) -> LogImport:
-    """Turn placed log readings into :class:`mapper.survey.store.NewReading` rows.
+    """Turn placed log readings into :class:`mapper.readings.model.NewReading` rows.
 
     Lon/lat positions are converted to site metres with the site's georeference; readings whose
     position falls outside the site outline (beyond ``outline_tolerance_m``) are reported in
@@ -363,7 +363,7 @@ def to_new_readings(
     import shapely
 
     from mapper.readings.importing import site_xy_from_lonlat
-    from mapper.survey.store import NewReading
+    from mapper.readings.model import NewReading
 
     placed = match.placed
     if match.lonlat and placed:

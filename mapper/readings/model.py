@@ -10,6 +10,8 @@ READING_KINDS = ("field", "reference", "zero", "calibration")
 #: Flag on a reading the user excluded: kept in the survey and the exports, left out of the field
 #: model, the controls and the outlier check's neighbours.
 EXCLUDED_FLAG = "excluded"
+#: Flag set by the survey app's "doubtful" box (the reading stays in the field model).
+DOUBTFUL_FLAG = "doubtful"
 
 
 @dataclass(frozen=True)
@@ -104,3 +106,47 @@ class Conditions:
     rh_percent: float | None
     temperature_c: float | None
     note: str = ""
+
+
+@dataclass(frozen=True)
+class NewReading:
+    """A reading about to be stored.
+
+    Attributes
+    ----------
+    x, y : float
+        Position, site metres.
+    entered_value : float
+        The number as typed or read, in ``entered_unit`` and the survey's sign convention.
+    entered_unit : str
+        Unit of ``entered_value``.
+    value_v_per_m : float
+        The same field in V/m, physics sign convention.
+    kind : str
+        One of ``field``, ``reference``, ``zero``, ``calibration``.
+    point : str or None
+        Plan point label, or ``None`` for a free position.
+    time : datetime or None
+        When taken (UTC); ``None`` means now.
+    height_m : float or None
+        Meter height, metres.
+    meter_id : str or None
+        Meter; ``None`` means the survey's current meter.
+    note : str
+        Free text.
+    flags : tuple of str
+        Markers.
+    """
+
+    x: float
+    y: float
+    entered_value: float
+    entered_unit: str
+    value_v_per_m: float
+    kind: str = "field"
+    point: str | None = None
+    time: datetime | None = None
+    height_m: float | None = None
+    meter_id: str | None = None
+    note: str = ""
+    flags: tuple[str, ...] = ()

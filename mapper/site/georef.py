@@ -139,6 +139,8 @@ def fit_similarity(
     ll = np.asarray(lonlat, dtype=float)
     if len(xy) < 2:
         raise MapperError("a georeference needs at least 2 control points")
+    if not (np.isfinite(xy).all() and np.isfinite(ll).all()):
+        raise MapperError("a control point has a coordinate that is not a finite number (nan or inf)")
     if np.ptp(xy, axis=0).max() <= 0:
         raise MapperError("control points all have the same site position; they must be apart")
     if crs is None:

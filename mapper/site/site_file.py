@@ -9,6 +9,7 @@ import dataclasses
 import math
 import re
 import tomllib
+import warnings
 from collections.abc import Mapping
 from pathlib import Path
 from zoneinfo import ZoneInfo, ZoneInfoNotFoundError
@@ -112,12 +113,23 @@ def parse_wkt(wkt: object, where: str) -> BaseGeometry:
     if not isinstance(wkt, str) or not wkt.strip():
         raise MapperError("expected WKT text, e.g. 'POLYGON ((0 0, 10 0, 10 5, 0 5, 0 0))'", where=where)
     try:
-        return shapely.from_wkt(wkt)
+        geom = shapely.from_wkt(wkt)
     except Exception as exc:  # shapely.errors.GEOSException and friends
-        reason = str(exc).splitlines()[0]
-        if "closed" in reason.lower():
-            reason = f"ring is not closed (first and last points differ): {reason}"
-        raise MapperError(f"bad WKT: {reason}", where=where) from None
+        raise MapperError(f"bad WKT: {_geos_reason(exc)}", where=where) from None
+    if shapely.has_z(geom):
+        raise MapperError("WKT has Z coordinates; site geometry is a 2-D plan in x, y "
+                          "(give an asset's height as height_m)", where=where)
+    if not np.isfinite(shapely.get_coordinates(geom)).all():
+        raise MapperError("WKT holds a coordinate that is not a finite number (nan or inf)", where=where)
+    return geom
+
+
+def _geos_reason(exc: Exception) -> str:
+    """The first line of a GEOS error, with a plain-words note for an unclosed ring."""
+    reason = str(exc).splitlines()[0]
+    if "closed" in reason.lower():
+        reason = f"ring is not closed (first and last points differ): {reason}"
+    return reason
 
 
 def _scale(geom: BaseGeometry, factor: float) -> BaseGeometry:
@@ -144,21 +156,25 @@ def site_from_toml_text(text: str, source: str = "<site>") -> Site:
     name = head.get("name")
     if not isinstance(name, str) or not name.strip():
         raise MapperError("missing or empty 'name'", where=_where(source, text, "site", 0, "name"))
+    _refuse_non_finite(data, source, text)
     units = head.get("units", "m")
-    if units not in LENGTH_UNITS:
+    if not isinstance(units, str) or units not in LENGTH_UNITS:
         raise MapperError(
             f"unknown units {units!r}; accepted: {', '.join(LENGTH_UNITS)}",
             where=_where(source, text, "site", 0, "units"),
         )
     factor = LENGTH_UNITS[units]
     crs = head.get("crs")
+    if crs is not None and not (isinstance(crs, str) and crs.strip()):
+        raise MapperError(f"'crs' must be text such as 'EPSG:32633', got {crs!r}",
+                          where=_where(source, text, "site", 0, "crs"))
     outline_table = data.get("outline")
     if not isinstance(outline_table, dict) or "wkt" not in outline_table:
         raise MapperError("missing [outline] table with 'wkt'", where=source)
     outline = _scale(parse_outline(outline_table["wkt"], _where(source, text, "outline", 0, "wkt")), factor)
 
     assets = []
-    for i, item in enumerate(data.get("asset", [])):
+    for i, item in enumerate(_tables(data, "asset", source, text)):
         kind = str(item.get("kind", "asset"))
         geom = _scale(parse_wkt(item.get("wkt"), _where(source, text, "asset", i, "wkt")), factor)
         assets.append(
@@ -172,7 +188,7 @@ def site_from_toml_text(text: str, source: str = "<site>") -> Site:
             )
         )
     zones = []
-    for i, item in enumerate(data.get("zone", [])):
+    for i, item in enumerate(_tables(data, "zone", source, text)):
         where = _where(source, text, "zone", i, "wkt")
         geom = _scale(parse_wkt(item.get("wkt"), where), factor)
         if not isinstance(geom, Polygon | MultiPolygon) or not geom.is_valid:
@@ -186,7 +202,7 @@ def site_from_toml_text(text: str, source: str = "<site>") -> Site:
                 raise MapperError(exc.message, where=_where(source, text, "zone", i, "limit")) from None
         zones.append(Zone(str(item.get("name", f"zone {i + 1}")), geom, limit_v, str(item.get("kind", "zone"))))
     points = []
-    for i, item in enumerate(data.get("control_point", [])):
+    for i, item in enumerate(_tables(data, "control_point", source, text)):
         try:
             values = {k: float(item[k]) for k in ("x", "y", "lon", "lat")}
         except (KeyError, TypeError, ValueError) as exc:
@@ -211,6 +227,45 @@ def site_from_toml_text(text: str, source: str = "<site>") -> Site:
         key = ("site", 0, "crs") if "CRS" in exc.message else ("control_point", 0, "x")
         raise MapperError(exc.message, where=_where(source, text, *key)) from None
     return dataclasses.replace(site, timezone=_timezone(head.get("timezone"), _where(source, text, "site", 0, "timezone")))
+
+
+def _tables(data: dict, name: str, source: str, text: str) -> list[dict]:
+    """The ``[[name]]`` tables of a site file; any other shape (a single ``[name]`` table, a
+    string, a number, a list of non-tables) is refused, pointing at the key."""
+    value = data.get(name, [])
+    if isinstance(value, list) and all(isinstance(item, dict) for item in value):
+        return value
+    if isinstance(value, dict):
+        found = f"a single [{name}] table"
+    elif isinstance(value, list):
+        found = "a list that is not all tables"
+    else:
+        found = f"{type(value).__name__} {value!r}"
+    line = _header_line(text, name, 0) or _key_line(text, name)
+    raise MapperError(f"'{name}' must be [[{name}]] tables (double brackets), one per {name.replace('_', ' ')}; "
+                      f"found {found}", where=f"{source}:{line}" if line else source)
+
+
+def _key_line(text: str, key: str) -> int | None:
+    """Line number of the first ``key = ...`` line in TOML text."""
+    pattern = re.compile(rf"^\s*{re.escape(key)}\s*=")
+    return next((n for n, line in enumerate(text.splitlines(), start=1) if pattern.match(line)), None)
+
+
+def _refuse_non_finite(data: dict, source: str, text: str) -> None:
+    """Refuse ``nan`` and ``inf`` anywhere in a site file (they would stall or poison the georeference
+    and the plan), naming the table and key."""
+    for table, value in data.items():
+        if isinstance(value, float) and not math.isfinite(value):
+            raise MapperError(f"'{table}' must be a finite number, got {value}", where=source)
+        items = [value] if isinstance(value, dict) else value if isinstance(value, list) else []
+        for index, item in enumerate(items):
+            if not isinstance(item, dict):
+                continue  # a list that is not tables is refused by _tables
+            for key, number in item.items():
+                if isinstance(number, float) and not math.isfinite(number):
+                    raise MapperError(f"'{key}' must be a finite number, got {number}",
+                                      where=_where(source, text, table, index, key))
 
 
 def _timezone(value, where: str) -> str | None:
@@ -272,19 +327,8 @@ def site_from_vector_file(path: Path, roles: Mapping[str, str], factor: float = 
     translation. Data without a CRS (typical of DXF) is taken as site coordinates, multiplied by
     ``factor`` (metres per drawing unit).
     """
-    import geopandas as gpd
-    import pyogrio
-
-    try:
-        layers = [str(row[0]) for row in pyogrio.list_layers(path)]
-    except Exception as exc:
-        raise MapperError(f"cannot read vector file: {str(exc).splitlines()[0]}", where=str(path)) from None
+    layers, frames = _read_layers(path)
     unknown = sorted(set(roles) - set(layers))
-    frames = []
-    for layer in layers:
-        frame = gpd.read_file(path, layer=layer)
-        frame["_layer"] = layer
-        frames.append(frame)
     if not frames:
         raise MapperError("vector file has no layers", where=str(path))
     cad_layers = {str(v) for frame in frames if "Layer" in frame.columns for v in frame["Layer"].dropna()}
@@ -296,14 +340,24 @@ def site_from_vector_file(path: Path, roles: Mapping[str, str], factor: float = 
     for frame in frames[1:]:
         if frame.crs != crs:
             frame.to_crs(crs, inplace=True)
-    outline_parts, assets, zones = [], [], []
+    outline_parts, assets, zones, z_notes = [], [], [], []
     for frame in frames:
         for index, row in frame.iterrows():
             geom = row.geometry
-            if geom is None or geom.is_empty:
-                continue
-            role = _role_of(row, roles)
             where = f"{path}: layer {row['_layer']!r} feature {index}"
+            if not isinstance(geom, BaseGeometry):
+                raise MapperError("feature has no geometry, or one that cannot be read (e.g. a polygon ring "
+                                  "that is not closed); fix or remove it", where=where)
+            if geom.is_empty:
+                continue
+            if not np.isfinite(shapely.get_coordinates(geom)).all():
+                raise MapperError("feature has a coordinate that is not a finite number", where=where)
+            if shapely.has_z(geom):  # CAD drawings are often 3-D with every Z at 0: the plan is 2-D
+                if np.any(shapely.get_coordinates(geom, include_z=True)[:, 2] != 0):
+                    z_notes.append(f"{where}: Z coordinates dropped; the site is a 2-D plan "
+                                   "(give an asset's height as height_m)")
+                geom = shapely.force_2d(geom)
+            role = _role_of(row, roles)
             if role is None:
                 raise MapperError(
                     "feature has no role; give it a 'kind' attribute or map its layer with --role LAYER=ROLE",
@@ -362,7 +416,73 @@ def site_from_vector_file(path: Path, roles: Mapping[str, str], factor: float = 
         assets = [dataclasses.replace(a, geometry=_scale(a.geometry, factor)) for a in assets]
         zones = [Zone(z.name, _scale(z.geometry, factor), z.limit_v_per_m, z.kind) for z in zones]
     name = path.stem.replace("_", " ")
-    return _finish(name, outline, assets, zones, [], georef.crs if georef else None, str(path), georef)
+    site = _finish(name, outline, assets, zones, [], georef.crs if georef else None, str(path), georef)
+    return dataclasses.replace(site, warnings=site.warnings + tuple(z_notes[:1]))
+
+
+def _read_layers(path: Path) -> tuple[list[str], list]:
+    """The layer names of a vector file and one GeoDataFrame per layer (column ``_layer``).
+
+    A DXF whose text is UTF-8 is read as UTF-8 whatever code page its header names (GDAL itself
+    writes such files), so non-ASCII layer names come out as written. A geometry GDAL cannot turn
+    into a shape (an unclosed ring) reads as a missing geometry, refused per feature by the caller.
+    """
+    import geopandas as gpd
+    import pyogrio
+
+    options = {}
+    if path.suffix.lower() == ".dxf" and _is_utf8_beyond_ascii(path):
+        options = {"DXF_ENCODING": "UTF-8"}
+    before = {key: pyogrio.get_gdal_config_option(key) for key in options}
+    pyogrio.set_gdal_config_options(options)
+    try:
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore")  # GDAL's notes (no CRS, unclosed ring) become our errors
+            layers = [str(row[0]) for row in pyogrio.list_layers(path)]
+            frames = []
+            for layer in layers:
+                frame = gpd.read_file(path, layer=layer, on_invalid="ignore")
+                frame["_layer"] = layer
+                frames.append(frame)
+    except Exception as exc:  # pyogrio's DataSourceError, FeatureError and GEOS errors
+        raise MapperError(f"cannot read vector file: {_vector_reason(path, exc)}", where=str(path)) from None
+    finally:
+        pyogrio.set_gdal_config_options(before)
+    return layers, frames
+
+
+def _is_utf8_beyond_ascii(path: Path) -> bool:
+    data = path.read_bytes()
+    if data.isascii():
+        return False
+    try:
+        data.decode("utf-8")
+    except UnicodeDecodeError:
+        return False
+    return True
+
+
+def _vector_reason(path: Path, exc: Exception) -> str:
+    """GDAL's complaint in a line; for a DXF, the line and the entity GDAL stopped at."""
+    reason = _geos_reason(exc)
+    found = re.search(r"error at line (\d+)", reason)
+    if path.suffix.lower() != ".dxf" or not found:
+        return reason
+    line = int(found.group(1))
+    entity = _dxf_entity_at(path, line)
+    hint = "fix or remove it, or save the drawing again from the CAD program"
+    if entity == "SPLINE":
+        hint = "a SPLINE given by fit points only cannot be read; convert it to a polyline in the CAD program"
+    return f"the drawing cannot be read at line {line} (in a {entity or 'unknown'} entity); {hint}"
+
+
+def _dxf_entity_at(path: Path, line: int) -> str | None:
+    """The type of the DXF entity that holds ``line`` (the last group code 0 before it)."""
+    lines = path.read_bytes().decode("utf-8", "replace").splitlines()
+    for number in range(min(line, len(lines)) - 1, 0, -1):
+        if lines[number - 1].strip() == "0" and number % 2 == 1:  # group codes sit on odd lines
+            return lines[number].strip() or None
+    return None
 
 
 _FLAG_WORDS = {"true": True, "false": False, "yes": True, "no": False, "1": True, "0": False}

@@ -2,10 +2,12 @@
 
 from __future__ import annotations
 
+import errno
 import fcntl
 import os
 from pathlib import Path
 
+from mapper.atomic_file import describe_os_error, space_problem
 from mapper.errors import MapperError
 
 
@@ -27,7 +29,10 @@ class WriterLock:
 
     def acquire(self) -> None:
         """Take the lock or raise a one-line refusal naming the holder."""
-        fd = os.open(self.path, os.O_RDWR | os.O_CREAT, 0o644)
+        try:
+            fd = os.open(self.path, os.O_RDWR | os.O_CREAT, 0o644)
+        except OSError as exc:
+            raise self._refusal(exc) from None
         try:
             fcntl.flock(fd, fcntl.LOCK_EX | fcntl.LOCK_NB)
         except BlockingIOError:
@@ -37,9 +42,18 @@ class WriterLock:
                 f"survey is open for writing by {holder}; close it there first (reading is still allowed)",
                 where=str(self.path.with_suffix("")),
             ) from None
-        os.ftruncate(fd, 0)
-        os.pwrite(fd, f"process {os.getpid()}".encode(), 0)
+        try:
+            os.ftruncate(fd, 0)
+            os.pwrite(fd, f"process {os.getpid()}".encode(), 0)
+        except OSError as exc:
+            os.close(fd)
+            raise self._refusal(exc) from None
         self._fd = fd
+
+    def _refusal(self, exc: OSError) -> MapperError:
+        cause = space_problem(self.path) if exc.errno in (errno.ENOSPC, errno.EFBIG) else None
+        return MapperError(f"cannot take the writer lock {self.path.name}: {cause or describe_os_error(exc)}",
+                           where=str(self.path.with_suffix("")))
 
     def release(self) -> None:
         """Release the lock (the file stays; it is harmless)."""

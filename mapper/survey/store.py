@@ -2,17 +2,22 @@
 
 from __future__ import annotations
 
+import contextlib
 import json
 import os
 import sqlite3
-from collections.abc import Iterable, Sequence
-from dataclasses import dataclass, replace
+from collections.abc import Iterable, Iterator, Sequence
+from dataclasses import replace
 from datetime import UTC, datetime
 from pathlib import Path
 
+import shapely.errors
+
+from mapper.atomic_file import space_problem
+from mapper.defaults import DEFAULT_THRESHOLD_V_PER_M
 from mapper.errors import MapperError
 from mapper.plan.grid import Plan, PlanPoint
-from mapper.readings.model import READING_KINDS, Conditions, Reading
+from mapper.readings.model import READING_KINDS, Conditions, NewReading, Reading
 from mapper.site.model import Site
 from mapper.survey.lock import WriterLock
 from mapper.survey.schema import APPLICATION_ID, SCHEMA_VERSION, migrate
@@ -39,50 +44,6 @@ def to_utc_text(moment: datetime) -> str:
 def from_utc_text(text: str) -> datetime:
     """Parse :func:`to_utc_text` output."""
     return datetime.fromisoformat(text)
-
-
-@dataclass(frozen=True)
-class NewReading:
-    """A reading about to be stored.
-
-    Attributes
-    ----------
-    x, y : float
-        Position, site metres.
-    entered_value : float
-        The number as typed or read, in ``entered_unit`` and the survey's sign convention.
-    entered_unit : str
-        Unit of ``entered_value``.
-    value_v_per_m : float
-        The same field in V/m, physics sign convention.
-    kind : str
-        One of ``field``, ``reference``, ``zero``, ``calibration``.
-    point : str or None
-        Plan point label, or ``None`` for a free position.
-    time : datetime or None
-        When taken (UTC); ``None`` means now.
-    height_m : float or None
-        Meter height, metres.
-    meter_id : str or None
-        Meter; ``None`` means the survey's current meter.
-    note : str
-        Free text.
-    flags : tuple of str
-        Markers.
-    """
-
-    x: float
-    y: float
-    entered_value: float
-    entered_unit: str
-    value_v_per_m: float
-    kind: str = "field"
-    point: str | None = None
-    time: datetime | None = None
-    height_m: float | None = None
-    meter_id: str | None = None
-    note: str = ""
-    flags: tuple[str, ...] = ()
 
 
 class Survey:
@@ -121,7 +82,7 @@ class Survey:
         *,
         display_unit: str = "V/m",
         sign_convention: str = "physics",
-        threshold_v_per_m: float = 125 / 0.0254,
+        threshold_v_per_m: float = DEFAULT_THRESHOLD_V_PER_M,
         site_text: str | None = None,
         operator: str = "",
     ) -> Survey:
@@ -184,10 +145,14 @@ class Survey:
                     (DEFAULT_METER, json.dumps({"id": DEFAULT_METER, "description": "default meter"})),
                 )
                 _log(conn, "created", {"points": len(plan.points), "site": site.name})
-        except BaseException:
+        except BaseException as exc:
+            cause = storage_failure(exc, path) if isinstance(exc, sqlite3.DatabaseError) else None
             conn.close()
             lock.release()
-            path.unlink(missing_ok=True)
+            for leftover in (path, Path(f"{path}-wal"), Path(f"{path}-shm")):
+                leftover.unlink(missing_ok=True)
+            if cause is not None:
+                raise MapperError(f"cannot create the survey file: {cause}", where=str(path)) from None
             raise
         survey = cls(path, conn, lock)
         # the stored site is read back, but the loader's warnings are not stored: keep them
@@ -239,18 +204,20 @@ class Survey:
                 app_id = conn.execute("PRAGMA application_id").fetchone()[0]
                 damage = conn.execute("PRAGMA quick_check(1)").fetchone()[0]
             except sqlite3.DatabaseError as exc:
+                cause = storage_failure(exc, path)
+                if cause is not None:  # the file may well be intact: say what really failed
+                    raise MapperError(f"cannot open the survey file: {cause}; nothing was read or written",
+                                      where=str(path)) from None
                 damage = str(exc)
                 app_id = APPLICATION_ID
             if damage != "ok":
                 detail = [line for line in damage.splitlines() if line.strip() and not line.startswith("***")]
-                raise MapperError(
-                    f"survey file is damaged ({(detail or [damage])[0]}); nothing was read or written. "
-                    f"Restore it from a backup, or salvage its rows with: sqlite3 {path} .recover",
-                    where=str(path),
-                )
+                raise _damaged(path, (detail or [damage])[0])
             if app_id != APPLICATION_ID:
                 raise MapperError("not a survey file (SQLite database of another program)", where=str(path))
             version = conn.execute("PRAGMA user_version").fetchone()[0]
+            if version < 0:
+                raise _damaged(path, f"schema version {version}")
             if version > SCHEMA_VERSION:
                 raise MapperError(
                     f"survey file has schema version {version}, newer than this mapper ({SCHEMA_VERSION}); upgrade mapper",
@@ -301,8 +268,7 @@ class Survey:
     def set(self, key: str, value: str) -> None:
         """Set one metadata value (committed, logged)."""
         self._require_write()
-        with self.conn:
-            self.conn.execute("BEGIN")
+        with self._transaction("BEGIN"):
             self.conn.execute("INSERT OR REPLACE INTO meta (key, value) VALUES (?, ?)", (key, str(value)))
             _log(self.conn, "meta", {key: str(value)})
 
@@ -324,15 +290,35 @@ class Survey:
     @property
     def threshold_v_per_m(self) -> float:
         """The survey's action level, V/m."""
-        return float(self.get("threshold_v_per_m", repr(125 / 0.0254)))
+        return float(self.get("threshold_v_per_m", repr(DEFAULT_THRESHOLD_V_PER_M)))
 
     @property
     def site(self) -> Site:
         """The surveyed site."""
         if self._site is None:
             row = self.conn.execute("SELECT json FROM site WHERE id = 1").fetchone()
-            self._site = Site.from_dict(json.loads(row["json"]))
+            if row is None:
+                raise _damaged(self.path, "no site record")
+            try:
+                self._site = Site.from_dict(json.loads(row["json"]))
+            except (ValueError, TypeError, KeyError, AttributeError, shapely.errors.ShapelyError) as exc:
+                raise _damaged(self.path, f"site record unreadable: {type(exc).__name__}: {exc}") from None
         return self._site
+
+    @contextlib.contextmanager
+    def _transaction(self, begin: str = "BEGIN IMMEDIATE") -> Iterator[None]:
+        """One write transaction, committed when the block ends; a full disk or a file-size limit
+        is a one-line error naming the survey (SQLite has rolled the transaction back)."""
+        try:
+            with self.conn:
+                self.conn.execute(begin)
+                yield
+        except sqlite3.OperationalError as exc:
+            cause = storage_failure(exc, self.path)
+            if cause is None:
+                raise
+            raise MapperError(f"cannot save to the survey file: {cause}; nothing of this change was saved",
+                              where=str(self.path)) from None
 
     @property
     def plan(self) -> Plan:
@@ -381,8 +367,7 @@ class Survey:
                 )
             )
         try:
-            with self.conn:
-                self.conn.execute("BEGIN IMMEDIATE")
+            with self._transaction():
                 first = self.conn.execute("SELECT COALESCE(MAX(id), 0) + 1 FROM readings").fetchone()[0]
                 self.conn.executemany(_INSERT_READING, rows)
                 detail = {"count": len(rows), "source": source, "first_id": first}
@@ -449,8 +434,7 @@ class Survey:
             values["flags"] = ",".join(values["flags"])
         check_field(float(values["value_v_per_m"]))
         now = to_utc_text(utc_now())
-        with self.conn:
-            self.conn.execute("BEGIN IMMEDIATE")
+        with self._transaction():
             cur = self.conn.execute(
                 _INSERT_READING,
                 (
@@ -496,6 +480,22 @@ class Survey:
             "SELECT * FROM readings WHERE id BETWEEN ? AND ? ORDER BY id", (ids[0], ids[-1])
         ).fetchall()
         return [_to_reading(r) for r in rows]
+
+    def reading_origins(self, ids: Iterable[int]) -> dict[int, dict]:
+        """Where each reading row came from: ``{id: {"source": ..., "recorded_utc": ...}}``.
+
+        Parameters
+        ----------
+        ids : iterable of int
+            Reading row ids; unknown ids are left out of the result.
+        """
+        wanted = {int(i) for i in ids}
+        if not wanted:
+            return {}
+        rows = self.conn.execute(
+            "SELECT id, source, recorded_utc FROM readings WHERE id BETWEEN ? AND ?", (min(wanted), max(wanted))
+        ).fetchall()
+        return {int(r[0]): {"source": r[1], "recorded_utc": r[2]} for r in rows if int(r[0]) in wanted}
 
     def readings(self, kind: str | None = "field") -> list[Reading]:
         """Current readings (not edited, undone or excluded), in the order they were recorded.
@@ -562,8 +562,7 @@ class Survey:
             if temperature_c is not None and not -60 <= temperature_c <= 80:
                 raise MapperError(f"temperature {temperature_c} °C is outside -60..80 °C")
         stored = []
-        with self.conn:
-            self.conn.execute("BEGIN IMMEDIATE")
+        with self._transaction():
             for rh_percent, temperature_c, note, time in notes:
                 stamp = to_utc_text(time or utc_now())
                 cur = self.conn.execute(
@@ -592,8 +591,7 @@ class Survey:
     def save_meter(self, meter_id: str, profile: dict) -> None:
         """Add or replace a meter profile."""
         self._require_write()
-        with self.conn:
-            self.conn.execute("BEGIN IMMEDIATE")
+        with self._transaction():
             self.conn.execute(
                 "INSERT INTO meters (id, json) VALUES (?, ?) ON CONFLICT(id) DO UPDATE SET json = excluded.json",
                 (meter_id, json.dumps(profile)),
@@ -604,8 +602,7 @@ class Survey:
     def save_field(self, method: str, summary: dict, data: bytes) -> int:
         """Store a field model (serialised grid) with a JSON summary."""
         self._require_write()
-        with self.conn:
-            self.conn.execute("BEGIN IMMEDIATE")
+        with self._transaction():
             cur = self.conn.execute(
                 "INSERT INTO field_models (created_utc, method, summary, data) VALUES (?, ?, ?, ?)",
                 (to_utc_text(utc_now()), method, json.dumps(summary), data),
@@ -634,8 +631,7 @@ class Survey:
     def log(self, kind: str, detail: dict) -> None:
         """Append to the event log."""
         self._require_write()
-        with self.conn:
-            self.conn.execute("BEGIN IMMEDIATE")
+        with self._transaction():
             _log(self.conn, kind, detail)
 
     def events(self) -> list[tuple[str, str, dict]]:
@@ -651,6 +647,26 @@ _INSERT_READING = (
     "kind, time_utc, height_m, meter_id, note, flags, source, recorded_utc) "
     "VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?)"
 )
+
+
+def storage_failure(exc: sqlite3.DatabaseError, path: Path) -> str | None:
+    """What failed underneath an SQLite error that is not damage (no space, file too large,
+    an I/O error), or ``None`` when the error is something else (damage included)."""
+    code = (getattr(exc, "sqlite_errorcode", None) or 0) & 0xFF
+    if code not in (_SQLITE_IOERR, _SQLITE_FULL, _SQLITE_CANTOPEN):
+        return None
+    return space_problem(path) or f"{exc} (the device or file system refused a read or write)"
+
+
+_SQLITE_IOERR, _SQLITE_FULL, _SQLITE_CANTOPEN = 10, 13, 14
+
+
+def _damaged(path: Path, detail: str) -> MapperError:
+    return MapperError(
+        f"survey file is damaged ({detail}); nothing was read or written. "
+        f"Restore it from a backup, or salvage its rows with: sqlite3 {path} .recover",
+        where=str(path),
+    )
 
 
 def _log(conn: sqlite3.Connection, kind: str, detail: dict) -> None:

@@ -32,6 +32,8 @@ def summarise(survey: Survey) -> dict:
     return {
         "name": survey.name,
         "file": str(survey.path),
+        "operator": survey.get("operator", "") or "",
+        "timezone": site.timezone,
         "site": {
             "area_m2": round(site.area_m2, 3),
             "assets": len(site.assets),

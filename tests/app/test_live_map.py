@@ -8,22 +8,15 @@ import numpy as np
 import pytest
 import shapely
 
-from mapper.app import live
-from mapper.app.palette import DIVERGING, diverging, hex_rgb, sequential
+from mapper import workflow as live
+from mapper.app.palette import hex_rgb, sequential
 from mapper.app.raster import make_frame
 from mapper.nice import nice_ceiling
 from mapper.readings.model import Reading
 from mapper.site.model import Site
 
 
-def test_diverging_palette_reads_sign():
-    # ColorBrewer RdBu (Brewer, colorbrewer2.org): the neutral class sits at zero, the darkest
-    # blue at -scale and the darkest red at +scale.
-    c = diverging(np.array([-2.0, -1.0, 0.0, 1.0, 5.0]), 1.0)
-    assert tuple(c[2]) == hex_rgb(DIVERGING[5])
-    assert tuple(c[1]) == tuple(c[0]) == hex_rgb(DIVERGING[0])  # saturates beyond the scale
-    assert tuple(c[3]) == tuple(c[4]) == hex_rgb(DIVERGING[-1])
-    assert c[3][0] > c[3][2] and c[1][2] > c[1][0]  # positive is red, negative is blue
+def test_sequential_palette_ends_are_viridis():
     s = sequential(np.array([0.0, 1.0]), 1.0)
     assert tuple(s[0]) == hex_rgb("#440154") and tuple(s[1]) == hex_rgb("#fde725")  # viridis ends
 
@@ -50,11 +43,27 @@ def _readings(xy, values):
 def test_refit_needs_enough_positions_then_maps():
     site = Site("box", shapely.box(0, 0, 10, 6))
     few = _readings([(1, 1), (1, 1), (3, 1)], [10, 12, 20])
-    assert live.refit(few, site, 100.0, []).grid is None  # 2 distinct positions
+    assert live.live_products(few, site, 100.0, []).grid is None  # 2 distinct positions
     rng = np.random.default_rng(1)
     xy = rng.uniform((0, 0), (10, 6), (12, 2))
     values = 400 * np.exp(-((xy[:, 0] - 3) ** 2 + (xy[:, 1] - 3) ** 2) / 4)
-    result = live.refit(_readings(xy, values), site, 200.0, [])
+    result = live.live_products(_readings(xy, values), site, 200.0, [])
     assert result.grid is not None and result.readings == 12
     assert np.nanmax(result.grid.estimate) <= values.max() + 1e-6  # IDW never overshoots
-    assert live.refit(_readings(xy, values), site, 200.0, [], cancelled=lambda: True) is None
+    assert live.live_products(_readings(xy, values), site, 200.0, [], cancelled=lambda: True) is None
+
+
+def test_live_map_says_when_the_corrections_could_not_be_applied(monkeypatch):
+    # The live map once fell back to the readings as entered without a word; now it says so.
+    from mapper.errors import MapperError
+
+    def refuse(*_args, **_kw):
+        raise MapperError("meter 'm9' has a gain of zero")
+
+    monkeypatch.setattr(live, "correct", refuse)
+    site = Site("box", shapely.box(0, 0, 10, 6))
+    rng = np.random.default_rng(2)
+    xy = rng.uniform((0, 0), (10, 6), (12, 2))
+    result = live.live_products(_readings(xy, np.full(12, 50.0)), site, 200.0, [])
+    assert result.grid is not None
+    assert any("corrections not applied" in n and "gain of zero" in n for n in result.notes)

@@ -45,7 +45,7 @@ async def test_readings_repeat_undo_and_refusals(box_survey: Path):
     async with app.run_test(size=(120, 40)) as pilot:
         main = _main(app)
         await _enter(pilot, "12")                      # A1
-        assert main.last_status == "saved A1 = 12 V/m"
+        assert main.last_status == "saved point A1 = 12 V/m"
         await _enter(pilot, "0.015kV/m")               # A2, unit suffix overrides V/m
         await _enter(pilot, "-8")                      # A3
         assert app.session.current.label == "A4"
@@ -71,7 +71,7 @@ async def test_readings_repeat_undo_and_refusals(box_survey: Path):
         await pilot.press("escape")
         assert survey.count_rows() == rows and app.session.current.label == "A4"
         await _enter(pilot, "2,5")                     # a decimal comma is a decimal mark
-        assert main.last_status == "saved A4 = 2.5 V/m"
+        assert main.last_status == "saved point A4 = 2.5 V/m"
         await pilot.press("ctrl+z")                    # undo it: the rest of the test expects A4 open
         await pilot.pause()
         rows = survey.count_rows()
@@ -85,7 +85,7 @@ async def test_readings_repeat_undo_and_refusals(box_survey: Path):
         # Undo the last repeat: superseded, and back at A3.
         await pilot.press("ctrl+z")
         await pilot.pause()
-        assert main.last_status.startswith("undone A3 = -10 V/m")
+        assert main.last_status.startswith("undone point A3 = -10 V/m")
         assert app.session.current.label == "A3"
         await settle(app)
         await pilot.press("ctrl+q")
@@ -121,14 +121,18 @@ async def test_conditions_note_free_position_reference(box_survey: Path):
         await pilot.press("enter")                     # value: blank keeps it
         await _type(pilot, "belt")
         await pilot.press("tab", "space", "shift+tab", "enter")   # tick "doubtful", save
-        assert main.last_status.startswith("saved edit A1 = -8 V/m [doubtful] “belt”")
+        assert main.last_status.startswith("saved edit point A1 = -8 V/m [doubtful] “belt”")
         # Free position off the grid.
+        left_at = app.session.current.label
         await pilot.press("f4", "ctrl+u")
         await _type(pilot, "3.3, 4.1")
         await pilot.press("enter")
         await _enter(pilot, "31")
         assert main.last_status == "saved (3.30, 4.10) m = 31 V/m"
         await pilot.press("f4")                        # back to the grid
+        # F4 from the free position returns to where the walk order was left, not the nearest point
+        assert app.session.current.label == left_at
+        assert main.last_status == f"back on the grid at point {left_at}"
         # A reference-station reading at the current point.
         await pilot.press("f7")
         await _enter(pilot, "20")
@@ -142,9 +146,8 @@ async def test_conditions_note_free_position_reference(box_survey: Path):
         got = [(r.point, r.entered_value, r.entered_unit, r.note, r.flags) for r in field]
         assert got == [("A1", -8.0, "V/m", "belt", ("doubtful",)), (None, 31.0, "V/m", "", ())]
         assert (field[1].x, field[1].y) == (3.3, 4.1)
-        # F4 from the free position (3.3, 4.1) returns to the nearest planned point, C2 at (3, 5).
         refs = s.readings(kind="reference")
-        assert [(r.entered_value, r.point) for r in refs] == [(20.0, "C2")]
+        assert [(r.entered_value, r.point) for r in refs] == [(20.0, left_at)]
         assert [(c.rh_percent, c.temperature_c) for c in s.conditions()] == [(28.0, 21.5)]
         # 3 records and 1 edit row (the pre-edit A1 row is kept, superseded).
         assert s.count_rows() == 4
@@ -176,7 +179,7 @@ async def test_moving_and_resume(box_survey: Path):
             assert "no planned point" in str(app.screen.query_one("#form-error").render())
             await pilot.press("escape")
             await _enter(pilot, "7")
-            assert main.last_status == "saved B4 = 7 V/m"
+            assert main.last_status == "saved point B4 = 7 V/m"
             # A click on the map goes to the nearest planned point.
             frame = main.query_one("#map").frame
             col, row = frame.to_pixel(9.0, 1.0)        # point A5 sits at (9, 1)
@@ -193,7 +196,7 @@ async def test_moving_and_resume(box_survey: Path):
         async with app.run_test(size=(100, 30)) as pilot:
             main = _main(app)
             assert app.session.current.label == "A5"   # position restored
-            assert "1 readings, 1/15 points done" in main.last_status
+            assert "1 reading, 1/15 points done" in main.last_status  # singular
             await pilot.press("ctrl+q")
 
 
@@ -213,3 +216,28 @@ async def test_conditions_asked_at_start(box_survey: Path):
             assert isinstance(app.screen, MainScreen)
             await pilot.press("ctrl+q")
         assert survey.conditions() == []
+
+
+@pytest.mark.asyncio
+async def test_map_colours_do_not_rescale_as_readings_arrive(box_survey: Path):
+    # One scale tied to the action level: a reading keeps its colour when a far larger one
+    # arrives (the scale once stretched from ±127 to ±635 V/in during a walk).
+    from mapper.features.colour_scale import colour_hex
+
+    survey = Survey.open(box_survey, write=True)
+    app = WalkApp(survey, ask_conditions=False)
+    async with app.run_test(size=(120, 40)) as pilot:
+        main = _main(app)
+        t = app.session.threshold_v_per_m
+        await _enter(pilot, "100")                     # A1
+        first = tuple(int(c) for c in main._markers("readings", main.scale(), 1.0).rgb[0])
+        await _enter(pilot, "90000")                   # A2, eighteen times the 125 V/in level
+        await settle(app)
+        again = tuple(int(c) for c in main._markers("readings", main.scale(), 1.0).rgb[0])
+        assert first == again
+        c = colour_hex(100.0, t).lstrip("#")
+        assert first == (int(c[0:2], 16), int(c[2:4], 16), int(c[4:6], 16))
+        legend = main.query_one("#legend").render()
+        assert "action level" in str(legend)
+        await pilot.press("ctrl+q")
+    survey.close()

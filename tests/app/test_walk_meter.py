@@ -31,7 +31,7 @@ async def test_meter_lines_land_in_entry_and_enter_records(box_survey):
             entry = app.screen.query_one("#entry")
             os.write(master, b"E=+2.50 kV/m\r\n")
             assert await wait_for(lambda: entry.value == "2.5kV/m", pilot)
-            assert "Enter records it at A1" in app.screen.last_status
+            assert "Enter records it at point A1" in app.screen.last_status
             await pilot.press("enter")
             await pilot.pause()
             os.write(master, b"garbage\r\n")

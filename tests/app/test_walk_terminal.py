@@ -78,11 +78,11 @@ def test_confirmed_readings_survive_sigkill(box_survey: Path):
     argv = [sys.executable, "-m", "mapper", "walk", str(box_survey), "--no-conditions"]
     term = Terminal(argv)
     try:
-        assert term.wait_for("new walk, start at A1"), term.text[-2000:]
+        assert term.wait_for("new walk, start at point A1"), term.text[-2000:]
         confirmed = []
         for value, label in (("12", "A1"), ("-3.5", "A2"), ("0.02kV/m", "A3"), ("7", "A4")):
             term.type(value + "\r")
-            message = f"saved {label} = {value.replace('kV/m', '')}"
+            message = f"saved point {label} = {value.replace('kV/m', '')}"
             assert term.wait_for(message), term.text[-2000:]
             confirmed.append(label)
         term.type("44")  # typed but never entered: not a reading

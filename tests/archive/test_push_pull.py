@@ -119,7 +119,7 @@ def test_geometries_in_the_real_crs_and_site_metres_with_gist_indexes(hall):
             f"SELECT site, hotspot_id, ST_SRID(geom), GeometryType(geom) FROM {SCHEMA}.latest_hotspots "
             "ORDER BY hotspot_id").fetchall()
     with Survey.open(hall["path"]) as survey:
-        from mapper.export.pipeline import survey_products
+        from mapper.workflow import survey_products
 
         expected = [h.id for h in survey_products(survey).findings.hotspots]
     assert [v[1] for v in view] == expected

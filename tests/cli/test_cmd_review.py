@@ -5,8 +5,8 @@ import json
 import numpy as np
 
 from mapper.cli.main import main
-from mapper.export.pipeline import survey_products
 from mapper.survey.store import NewReading, Survey
+from mapper.workflow import survey_products
 
 
 def fill(path, spike_at="C3"):

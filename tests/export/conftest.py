@@ -5,8 +5,8 @@ from __future__ import annotations
 import pytest
 
 from mapper.export.bundle import export_products
-from mapper.export.pipeline import survey_products
 from mapper.survey.store import Survey
+from mapper.workflow import survey_products
 from tests.export.helpers import georef_survey, north_hall_survey
 
 

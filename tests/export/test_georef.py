@@ -10,9 +10,9 @@ import rasterio
 from pyproj import CRS
 
 from mapper.export.bundle import export_products
-from mapper.export.pipeline import survey_products
 from mapper.site.georef import LOCAL_CRS_WKT
 from mapper.survey.store import Survey
+from mapper.workflow import survey_products
 from tests.export.helpers import ROTATION_DEG, UTM, add_grid_readings, known_forward
 
 #: Required accuracy of an exported position, metres (the issue's 5 cm).

@@ -15,7 +15,7 @@ from pyproj import CRS
 
 from mapper.export.crs import transform_all
 from mapper.export.metadata import METADATA_TABLE
-from mapper.export.styles import band_colors, ramp_color
+from mapper.export.styles import band_colors
 
 # The sample hall's field model is the physical one (it wins auto's cross-validation), so its
 # export also holds the source inventory.
@@ -162,21 +162,12 @@ def test_layer_styles(hall, conn):
     assert qml["hotspots"].find("labeling/settings/text-style").get("fieldName") == "hotspot_id"
     assert qml["readings"].find("renderer-v2").get("type") == "graduatedSymbol"
     # Diverging: bands below zero are blue-dominant, above zero red-dominant.
-    for band, color in zip(f.bands, band_colors(f.bands, f.levels), strict=True):
+    for band, color in zip(f.bands, band_colors(f.bands, f.threshold_v_per_m), strict=True):
         r, b = int(color[1:3], 16), int(color[5:7], 16)
         if band.upper_v_per_m <= 0:
             assert b > r, (band.label, color)
         if band.lower_v_per_m >= 0:
             assert r > b, (band.label, color)
-
-
-def test_ramp_is_diverging_and_symmetric_in_lightness():
-    def lightness(c):
-        return sum(int(c[i:i + 2], 16) for i in (1, 3, 5))
-
-    assert lightness(ramp_color(0.0)) > lightness(ramp_color(0.5)) > lightness(ramp_color(1.0))
-    assert lightness(ramp_color(0.0)) > lightness(ramp_color(-0.5)) > lightness(ramp_color(-1.0))
-    assert ramp_color(-2) == ramp_color(-1)
 
 
 def test_sources_layer_has_the_inventory_columns(hall):

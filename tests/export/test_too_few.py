@@ -6,8 +6,8 @@ import sqlite3
 
 import pyogrio
 
-from mapper.export.pipeline import MIN_FIELD_POSITIONS
 from mapper.survey.store import NewReading, Survey
+from mapper.workflow import MIN_FIELD_POSITIONS
 from tests.export.helpers import run_cli
 
 

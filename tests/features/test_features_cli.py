@@ -147,6 +147,51 @@ def test_compare_reports_the_removed_source_and_writes_a_geopackage(tmp_path, ca
     assert not list(tmp_path.glob(".*partial*"))
 
 
+def test_compare_writes_a_pdf_with_three_maps_on_one_scale(tmp_path, capsys):
+    # The tray's source removed (analytic point charges over a grounded floor): the PDF shows the
+    # before, after and difference maps, the change table and the cautions; --png the same page.
+    import pypdfium2 as pdfium
+
+    from mapper.features import CAUTIONS
+    from mapper.features.colour_scale import edges_v_per_m
+
+    before = _survey(tmp_path, "before", ["bin", "tray"])
+    after = _survey(tmp_path, "after", ["bin"])
+    out_path = tmp_path / "diff.gpkg"
+    code, out, err = _run(capsys, "compare", before, after, "--out", out_path, "--png", "--json")
+    assert code == 0, err
+    data = json.loads(out)
+    pdf, png = tmp_path / "diff.pdf", tmp_path / "diff.png"
+    assert data["pdf"] == str(pdf) and data["png"] == str(png)
+    assert png.read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
+    doc = pdfium.PdfDocument(pdf)
+    try:
+        assert len(doc) == 1
+        text = " ".join(doc[0].get_textpage().get_text_range().split())
+    finally:
+        doc.close()
+    for title in ("before", "after", "difference (after - before)", "Hotspot changes", "Cautions"):
+        assert title in text
+    assert "cleared" in text and "unchanged" in text
+    assert CAUTIONS[0].split(";")[0] in text
+    # one colour bar for all three maps, labelled with the scale's edges around the action level
+    t = data["summary"]["threshold_v_per_m"]
+    assert "the same bands for before, after and their difference" in text
+    from mapper.units import (
+        plain_number,  # the survey's display unit is V/m (create_survey's default)
+    )
+
+    assert all(plain_number(e, 3) in text for e in edges_v_per_m(t))
+
+
+def test_compare_refuses_a_pdf_name_before_any_work(tmp_path, capsys):
+    before = _survey(tmp_path, "before", ["bin", "tray"])
+    code, out, err = _run(capsys, "compare", before, before, "--out", tmp_path / "d.gpkg", "--pdf",
+                          tmp_path / "d.txt")
+    assert code == 2 and "should end in .pdf" in err and len(err.strip().splitlines()) == 1
+    assert not (tmp_path / "d.gpkg").exists()
+
+
 def test_compare_refuses_another_site_in_one_line(tmp_path, capsys):
     other = textwrap.dedent(
         """

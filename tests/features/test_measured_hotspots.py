@@ -133,8 +133,8 @@ def test_measured_hotspot_in_hotspots_json_and_the_geopackage(tmp_path, capsys):
 
 
 def test_survey_app_live_count_obeys_the_rule():
-    # The app's fast path (mapper.app.live.refit) counts a smoothed single exceedance too.
-    from mapper.app.live import refit
+    # The app's fast path (mapper.workflow.live_products) counts a smoothed single exceedance too.
+    from mapper.workflow import live_products as refit
 
     xy, v, rows = _readings({37: 1.3 * LEVEL})
     result = refit([r.reading for r in rows], Site("box", BOX), LEVEL, planned=())
@@ -209,10 +209,10 @@ def test_exceedances_outside_checks_the_outline_not_the_id_list():
 
 
 def test_readings_alone_make_measured_hotspots_before_there_is_a_map():
-    # Three readings, too few for a map (the app's MIN_POSITIONS_FOR_ESTIMATE is 4): the one at
+    # Three readings, too few for a map (MIN_FIELD_POSITIONS is 5): the one at
     # the level is still a hotspot, in the library and in the app's live count.
-    from mapper.app.live import refit
     from mapper.features.hotspots import reading_hotspots
+    from mapper.workflow import live_products as refit
 
     pts = [(5.0, 5.0, 100.0), (7.5, 5.0, -LEVEL), (10.0, 5.0, 200.0)]
     rows = [CorrectedReading(Reading(i + 1, x, y, e, e, "V/m", T0), e) for i, (x, y, e) in enumerate(pts)]

@@ -4,7 +4,7 @@ import numpy as np
 import pytest
 import shapely
 
-from mapper.errors import MapperError
+from mapper.errors import MapperError, NotFittedError
 from mapper.field import RBF, OrdinaryKriging, UniversalKriging, Variogram, build_field
 
 VG = Variogram("exponential", sill=1.0, range=10.0)
@@ -64,13 +64,16 @@ def test_collinear_points_for_plane_methods():
 def test_bad_options():
     with pytest.raises(MapperError, match="accepted: auto, kriging, universal, rbf, idw, physics"):
         build_field([[0, 0], [1, 1]], [1, 2], shapely.box(0, 0, 1, 1), method="spline")
+    # settings are stored as given and checked by fit (the estimator contract)
+    xy3, z3 = [[0, 0], [1, 0], [0, 1]], [1.0, 2.0, 3.0]
     with pytest.raises(MapperError, match="drift.*accepted: linear"):
-        UniversalKriging(VG, drift="quadratic")
+        UniversalKriging(VG, drift="quadratic").fit(xy3, z3)
     with pytest.raises(MapperError, match="neighbors"):
-        OrdinaryKriging(VG, neighbors=1)
+        OrdinaryKriging(VG, neighbors=1).fit(xy3, z3)
     with pytest.raises(MapperError, match="outline"):
         build_field([[0, 0], [1, 1]], [1, 2], shapely.Point(0, 0))
     with pytest.raises(MapperError, match="grid nodes"):
         build_field([[0, 0], [1, 1], [0, 1]], [1, 2, 3], shapely.box(0, 0, 1000, 1000), cell_m=0.1)
-    with pytest.raises(MapperError, match="before predict"):
+    # calling predict before fit is a programming error, not a user's mistake
+    with pytest.raises(NotFittedError, match="before predict"):
         OrdinaryKriging(VG).predict([[0, 0]])

@@ -183,3 +183,87 @@ def test_second_import_of_same_file_refused_unless_again(box_survey, tmp_path):
     assert digest(box_survey) == before
     result = mapper("import", box_survey, csv, "--again")
     assert result.returncode == 0 and "imported 2 readings" in result.stdout
+
+
+def test_help_lists_every_command_without_the_numerical_stack():
+    # `mapper --help` imports no sub-command module (numpy, scipy, shapely ... load only when a
+    # command runs), and still lists each command with its one-line help.
+    from mapper.cli.commands import COMMANDS
+
+    code = (
+        "import sys\n"
+        "from mapper.cli.main import main\n"
+        "try:\n    main(['--help'])\nexcept SystemExit:\n    pass\n"
+        "heavy = [m for m in ('numpy', 'scipy', 'shapely', 'geopandas', 'matplotlib', 'textual') "
+        "if m in sys.modules]\n"
+        "print('HEAVY', heavy)\n"
+    )
+    r = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True)
+    assert r.returncode == 0, r.stderr
+    assert "HEAVY []" in r.stdout
+    for name, (_, text) in COMMANDS.items():
+        assert name in r.stdout and text.split()[0] in r.stdout
+
+
+def test_info_counts_every_kind_with_plurals_and_the_operator(tmp_path):
+    survey = tmp_path / "hall.survey"
+    r = mapper("new", survey, "--site", SAMPLES / "north_hall.toml", "--spacing", "2", "--unit", "kV/m",
+               "--operator", "R. Osei")
+    assert r.returncode == 0, r.stderr
+    assert "residuals [-]" not in r.stdout
+    assert mapper("import", survey, SAMPLES / "north_hall_readings.csv").returncode == 0
+    out = mapper("info", survey).stdout
+    assert "355 readings (field 348, reference 5, zero 2)" in out
+    assert "operator  R. Osei" in out and "1 zone" in out and "1 zones" not in out
+    # local time with its offset (the sample site's timezone is Europe/Berlin, UTC+1 in November)
+    assert "Europe/Berlin (UTC+01:00)" in out
+    # the drift rate in the survey's display unit
+    drift = next(line for line in out.splitlines() if line.startswith("drift"))
+    assert "kV/m per hour" in drift and "V/m per hour" not in drift.replace("kV/m per hour", "")
+
+
+def test_swapped_lon_lat_gets_a_hint(tmp_path):
+    # The outdoor sample yard lies near 13.75 E, 51.05 N; a row with the two swapped lands
+    # thousands of kilometres away: refused by name, with the likely cause.
+    survey = tmp_path / "yard.survey"
+    assert mapper("new", survey, "--site", SAMPLES / "east_yard.geojson", "--spacing", "8").returncode == 0
+    lines = (SAMPLES / "east_yard_readings.csv").read_text().splitlines()
+    t, lon, lat, *rest = lines[1].split(",")
+    bad = tmp_path / "swapped.csv"
+    bad.write_text("\n".join([lines[0], ",".join([t, lat, lon, *rest])]) + "\n")
+    before = digest(survey)
+    r = mapper("import", survey, bad)
+    assert_one_line_error(r, "swapped.csv:2", "outside the site outline", "did you swap lon and lat?")
+    assert digest(survey) == before
+
+
+def test_long_commands_show_their_step_on_a_terminal_and_stay_quiet_otherwise(tmp_path):
+    import pty
+
+    survey = tmp_path / "hall.survey"
+    assert mapper("new", survey, "--site", SAMPLES / "north_hall.toml", "--spacing", "2").returncode == 0
+    assert mapper("import", survey, SAMPLES / "north_hall_readings.csv").returncode == 0
+    # Not a terminal: stderr carries no spinner, stdout is what scripts read.
+    quiet = mapper("report", survey, tmp_path / "a.pdf")
+    assert quiet.returncode == 0, quiet.stderr
+    assert "report:" not in quiet.stderr and "…" not in quiet.stderr
+    # stderr a terminal (a pseudo-terminal here): the spinner names the step as it goes.
+    leader, follower = pty.openpty()
+    env = dict(os.environ, COLUMNS="100", TERM="xterm")
+    proc = subprocess.Popen([sys.executable, "-m", "mapper", "report", str(survey), str(tmp_path / "b.pdf")],
+                            stdout=subprocess.PIPE, stderr=follower, env=env)
+    os.close(follower)
+    seen = b""
+    while True:
+        try:
+            chunk = os.read(leader, 4096)
+        except OSError:
+            break
+        if not chunk:
+            break
+        seen += chunk
+    out, _ = proc.communicate(timeout=300)
+    os.close(leader)
+    assert proc.returncode == 0
+    assert b"report:" in seen and (b"field model" in seen or b"drawing the pages" in seen)
+    assert b"wrote" in out and b"report:" not in out
