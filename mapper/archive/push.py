@@ -32,12 +32,12 @@ from mapper.archive.connect import connect, describe, psycopg, run_transaction
 from mapper.archive.schema import SCHEMA, check
 from mapper.errors import MapperError
 from mapper.export.crs import ExportCRS, export_crs
-from mapper.workflow import Products, survey_products
 from mapper.features.sources import source_records
 from mapper.field.storage import field_to_bytes
 from mapper.site.model import Site
 from mapper.survey.content import APPEND_ONLY, COLUMNS, SurveyContent, read_content
 from mapper.survey.store import Survey
+from mapper.workflow import Products, survey_products
 
 
 @dataclass(frozen=True)

@@ -13,8 +13,8 @@ from datetime import datetime
 from matplotlib.figure import Figure
 
 from mapper.archive.history import History
-from mapper.workflow import Products
 from mapper.units import from_si
+from mapper.workflow import Products
 
 STATUS_MARK = {"new": "new", "recurring": "recurring", "cleared": "cleared", None: "–"}
 
