@@ -36,7 +36,7 @@ def psycopg():
 
 
 def describe(url: str | None) -> str:
-    """The connection target in words, without any password (``user@host:port/dbname``)."""
+    """The connection target in words, without any password (``database NAME on user@host:port``)."""
     info = _params(url)
     if info is None:
         return "database (connection string not understood)"
@@ -44,8 +44,7 @@ def describe(url: str | None) -> str:
     port = info.get("port") or os.environ.get("PGPORT") or ""
     db = info.get("dbname") or os.environ.get("PGDATABASE") or ""
     user = info.get("user") or os.environ.get("PGUSER") or ""
-    text = f"{user + '@' if user else ''}{host}{':' + port if port else ''}/{db}"
-    return f"database {text}"
+    return f"database {db or '(default)'} on {user + '@' if user else ''}{host}{':' + port if port else ''}"
 
 
 def _params(url: str | None) -> dict[str, str] | None:
