@@ -119,6 +119,15 @@ HALL_SOURCES_AFTER = [
 ]
 
 
+#: A week later: belt 1 still remedied, the tote stack moved out of the hall, and film-wrapped
+#: pallets (charged negative on top) now stored on the pallet rack.
+HALL_SOURCES_THIRD = [
+    HALL_SOURCES_AFTER[0],
+    HALL_SOURCES[1],
+    AreaCharge(39.0, 23.0, 45.0, 26.0, h=2.2, density_c_per_m2=-6.0e-7),
+]
+
+
 def make_hall(
     rng: np.random.Generator,
     sources=HALL_SOURCES,
@@ -275,4 +284,5 @@ if __name__ == "__main__":
     make_hall(generator)
     make_yard(generator)
     make_hall(generator, HALL_SOURCES_AFTER, "north_hall_after", datetime(2026, 11, 24, 7, 30, tzinfo=UTC))
+    make_hall(generator, HALL_SOURCES_THIRD, "north_hall_third", datetime(2026, 12, 1, 7, 30, tzinfo=UTC))
     print("wrote", ", ".join(sorted(p.name for p in HERE.iterdir() if p.suffix in (".toml", ".csv", ".geojson"))))

@@ -19,6 +19,7 @@ COMMANDS: dict[str, tuple[str, str]] = {
     'compare': ('cmd_compare', 'compare two surveys of one site (before / after a change)'),
     'export': ('cmd_export', 'write a GeoPackage (readings, site, zones, assets, contours, bands, hotspots, advice) and a GeoTIFF of the field beside it'),
     'report': ('cmd_report', 'write a PDF report: the field map, the findings and the cautions'),
+    'archive': ('cmd_archive', 'the shared survey archive on PostgreSQL/PostGIS (init, push, list, pull, history)'),
     'demo': ('cmd_demo', 'run everything on the bundled indoor sample site'),
     'walk': ('cmd_walk', 'walk the grid in a terminal app: record readings, watch the live map'),
 }

@@ -676,7 +676,7 @@ def draw_sources_page(fig: Figure, products: Products) -> None:
 
 
 def write_report(products: Products, pdf_path: str | Path, *, png_path: str | Path | None = None,
-                 dpi: int = 160) -> ReportResult:
+                 dpi: int = 160, history=None, current: int | None = None) -> ReportResult:
     """Write the PDF report (and optionally the map page as PNG).
 
     Parameters
@@ -689,6 +689,10 @@ def write_report(products: Products, pdf_path: str | Path, *, png_path: str | Pa
         Also write the map alone as PNG here.
     dpi : int
         Resolution of the PNG, dots per inch.
+    history : mapper.archive.history.History, optional
+        The site's archived history: adds a history page (``mapper report --db``).
+    current : int, optional
+        Archive id of this survey, marked on the history page.
 
     Returns
     -------
@@ -706,6 +710,12 @@ def write_report(products: Products, pdf_path: str | Path, *, png_path: str | Pa
         for draw in pages:
             fig = Figure(figsize=PAGE_SIZE_IN)
             draw(fig, products)
+            figures.append(fig)
+        if history is not None:
+            from mapper.export.report_history import draw_history_page
+
+            fig = Figure(figsize=PAGE_SIZE_IN)
+            draw_history_page(fig, products, history, current)
             figures.append(fig)
         # Written beside the target and renamed into place when complete (mapper.atomic_file): a
         # killed run never leaves a truncated file under the final name, nor replaces a good one.
