@@ -419,16 +419,19 @@ def parse_readings_csv(
     return ParsedFile(good, rejected)
 
 
-def write_rejected(path: str | Path, rejected: Sequence[RejectedRow]) -> Path:
-    """Write rejected rows with their line and reason beside the input as ``NAME.rejected.csv``."""
+def write_rejected(path: str | Path, rejected: Sequence[RejectedRow], label: str = "line") -> Path:
+    """Write rejected rows with their line and reason beside the input as ``NAME.rejected.csv``.
+
+    ``label`` names the first column (``feature`` for a GIS layer, whose rows are features).
+    """
     path = Path(path)
     out = path.with_name(path.stem + ".rejected.csv")
-    columns = ["line", "reason"] + sorted({k for r in rejected for k in r.row if k is not None})
+    columns = [label, "reason"] + sorted({k for r in rejected for k in r.row if k is not None})
     with atomic_path(out) as tmp, open(tmp, "w", newline="", encoding="utf-8") as handle:
         writer = csv.DictWriter(handle, fieldnames=columns, extrasaction="ignore")
         writer.writeheader()
         for r in rejected:
-            writer.writerow({"line": r.line, "reason": r.reason, **{k: v for k, v in r.row.items() if k}})
+            writer.writerow({label: r.line, "reason": r.reason, **{k: v for k, v in r.row.items() if k}})
     return out
 
 
