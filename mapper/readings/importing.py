@@ -297,7 +297,9 @@ def _position_pair(fields: Sequence[str], crs: str | None, path: Path) -> tuple[
             raise MapperError(f"columns {by_lower[low]!r} and {name!r} name the same position; keep one",
                               where=f"{path}:1")
         by_lower.setdefault(low, name)
-    for a, b, holds in POSITION_HEADERS:
+    # with --crs, easting/northing columns win over x,y (which may then be site metres beside them)
+    pairs = sorted(POSITION_HEADERS, key=lambda p: crs is None or p[2] != "projected")
+    for a, b, holds in pairs:
         if a in by_lower and b in by_lower:
             if holds == "projected" and crs is None:
                 raise MapperError(f"{by_lower[a]},{by_lower[b]} are projected coordinates; give their CRS "

@@ -154,7 +154,7 @@ def test_projected_csv_with_crs_matches_the_lonlat_csv(capsys, tmp_path, names):
 def test_hall_projected_csv_in_its_crs(capsys, tmp_path, hall_site):
     rows = csv_rows(HALL_CSV)
     e, n = hall_in("EPSG:32633", hall_site, rows)
-    rest = [k for k in rows[0] if k not in ("x", "y")]
+    rest = list(rows[0])  # x,y (site metres) stay beside E,N: with --crs the projected pair counts
     path = write_csv(tmp_path / "en.csv", ["E", "N", *rest],
                      [[f"{a:.4f}", f"{b:.4f}", *(r[k] for k in rest)] for a, b, r in zip(e, n, rows, strict=True)])
     want = imported(capsys, tmp_path, "csv", HALL, HALL_CSV)
