@@ -10,6 +10,7 @@ CSV row.
 from __future__ import annotations
 
 import math
+import re
 import warnings
 from collections.abc import Sequence
 from datetime import date, datetime, tzinfo
@@ -118,6 +119,8 @@ def parse_readings_vector(
     cells = frame[list(columns.values())].to_dict("records")
     for index, (fid, geom) in enumerate(zip(frame.index, frame.geometry, strict=True)):
         row = {key: _cell(cells[index][column]) for key, column in columns.items()}
+        if "time" in row:
+            row["time"] = _iso_time_text(row["time"])
         try:
             if points[index] is None:
                 raise RowError("geometry", _geometry_problem(geom))
@@ -157,13 +160,13 @@ def _pick_layer(path: Path, layer: str | None) -> str:
 
 
 def _read_layer(path: Path, layer: str):
-    """One layer as a GeoDataFrame indexed by feature id, times kept as the text stored."""
+    """One layer as a GeoDataFrame indexed by feature id (DATETIME fields as datetimes)."""
     import pyogrio
 
     try:
         with warnings.catch_warnings():
             warnings.simplefilter("ignore")  # GDAL's notes become our errors
-            return pyogrio.read_dataframe(path, layer=layer, fid_as_index=True, datetime_as_string=True,
+            return pyogrio.read_dataframe(path, layer=layer, fid_as_index=True,
                                           on_invalid="ignore")
     except Exception as exc:  # pyogrio's DataSourceError, FieldError and GEOS errors
         raise MapperError(f"cannot read layer {layer!r}: {str(exc).splitlines()[0]}", where=str(path)) from None
@@ -243,6 +246,20 @@ def _cell(value) -> str:
     if isinstance(value, datetime | date):
         return value.isoformat()
     return str(value)
+
+
+#: GDAL's text form of a date-time (``2026/11/17 07:30:00+00``), as it writes one to a Shapefile.
+_GDAL_TIME = re.compile(r"^\s*(\d{4})/(\d{2})/(\d{2})[ T](\d{2}:\d{2}(?::\d{2}(?:\.\d+)?)?)\s*(?:([+-]\d{2})(?::?(\d{2}))?)?\s*$")
+
+
+def _iso_time_text(text: str) -> str:
+    """GDAL's date-time text as ISO 8601 (any other text unchanged, for the time parser to judge)."""
+    found = _GDAL_TIME.match(text)
+    if not found:
+        return text
+    year, month, day, clock, hours, minutes = found.groups()
+    offset = f"{hours}:{minutes or '00'}" if hours else ""
+    return f"{year}-{month}-{day}T{clock}{offset}"
 
 
 def _listing(frame) -> str:

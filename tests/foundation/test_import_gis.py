@@ -283,3 +283,21 @@ def test_several_layers_need_layer(capsys, tmp_path, box_site):
     one_line_error(code, err, "no layer 'lunch'")
     code, err = run(capsys, ["import", survey, tmp_path / "two.gpkg", "--layer", "afternoon"])
     assert code == 0, err
+
+
+@pytest.mark.parametrize("suffix", [".gpkg", ".shp", ".geojson"])
+def test_times_stored_as_datetimes(capsys, tmp_path, suffix):
+    # a GIS writes a time as a DATETIME field (GeoPackage, GeoJSON) or as GDAL's text form of one
+    # (a Shapefile has no date-time type): both read as the CSV's ISO 8601 times
+    import pandas as pd
+
+    rows = csv_rows(YARD_CSV)
+    frame = frame_of(rows, ([float(r["lon"]) for r in rows], [float(r["lat"]) for r in rows]), "EPSG:4326",
+                     ("lon", "lat"))
+    frame["time"] = pd.to_datetime(frame["time"], utc=True)
+    path = tmp_path / f"timed{suffix}"
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")  # the Shapefile driver notes it writes the times as text
+        frame.to_file(path)
+    want = imported(capsys, tmp_path, "csv", YARD, YARD_CSV)
+    same_readings(imported(capsys, tmp_path, "timed", YARD, path), want)
