@@ -1,4 +1,4 @@
-"""``mapper import``: load readings from a CSV file into a survey."""
+"""``mapper import``: load readings from a CSV file or a GIS point layer into a survey."""
 
 from __future__ import annotations
 
@@ -84,6 +84,8 @@ def run(args) -> int:
                 tz=tz,
             )
         elif is_conditions_csv(args.file):
+            if args.crs:
+                raise MapperError("--crs goes with positions; a conditions file has none", where=args.file)
             notes = parse_conditions_csv(args.file, tz)
             survey.add_condition_notes([(n.rh_percent, n.temperature_c, n.note, n.time) for n in notes])
             say(f"imported {plural(len(notes), 'condition note')} into {survey.path}")
