@@ -301,3 +301,15 @@ def test_times_stored_as_datetimes(capsys, tmp_path, suffix):
         frame.to_file(path)
     want = imported(capsys, tmp_path, "csv", YARD, YARD_CSV)
     same_readings(imported(capsys, tmp_path, "timed", YARD, path), want)
+
+
+def test_layer_in_mappers_local_grid_is_site_metres(capsys, tmp_path, box_site):
+    from pyproj import CRS
+
+    from mapper.site.georef import LOCAL_CRS_WKT
+
+    frame = gpd.GeoDataFrame({"value": [5.0], "unit": ["V/m"]}, geometry=[Point(2.5, 3.5)],
+                             crs=CRS.from_wkt(LOCAL_CRS_WKT))
+    frame.to_file(tmp_path / "grid.gpkg", layer="readings")
+    got = imported(capsys, tmp_path, "box", box_site, tmp_path / "grid.gpkg")
+    assert [(r.x, r.y) for r in got] == [(2.5, 3.5)]
