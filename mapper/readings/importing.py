@@ -1,4 +1,7 @@
-"""Import readings from CSV: every row checked, all or nothing unless told to skip bad rows."""
+"""Import readings from CSV, and the row checks every readings import shares (:class:`RowChecker`).
+
+Every row is checked; all or nothing unless told to skip bad rows.
+"""
 
 from __future__ import annotations
 
