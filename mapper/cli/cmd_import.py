@@ -1,4 +1,4 @@
-"""``mapper import``: load readings from a CSV file into a survey."""
+"""``mapper import``: load readings from a CSV file or a GIS point layer into a survey."""
 
 from __future__ import annotations
 
@@ -18,6 +18,7 @@ from mapper.readings.importing import (
     parse_readings_csv,
     write_rejected,
 )
+from mapper.readings.vector_import import input_files, is_vector_readings, parse_readings_vector
 from mapper.survey.store import Survey
 from mapper.wording import plural
 
@@ -25,7 +26,14 @@ from mapper.wording import plural
 def register(sub) -> None:
     p = sub.add_parser("import", help=summary('import'))
     p.add_argument("survey", help="survey file")
-    p.add_argument("file", help="CSV with x,y (or lon,lat),value[,unit,time,height_m,note,kind,meter,point]")
+    p.add_argument(
+        "file",
+        help="CSV with x,y (or lon,lat, or easting,northing with --crs),value[,unit,time,height_m,note,kind,"
+             "meter,point], or a GeoJSON, GeoPackage or Shapefile point layer with those attributes",
+    )
+    p.add_argument("--crs", metavar="EPSG:NNNN", help="CRS of projected positions (CSV x,y or easting,northing; "
+                   "a point layer that states none)")
+    p.add_argument("--layer", metavar="NAME", help="layer of a GeoPackage with several")
     p.add_argument("--unit", type=unit_arg, help="unit of values without a unit column")
     p.add_argument("--skip-bad", action="store_true", help="import good rows; write bad ones beside the input")
     p.add_argument("--tz", default=None, help="time zone of times written without an offset (default UTC)")
@@ -50,41 +58,64 @@ def run(args) -> int:
             tz = ZoneInfo(args.tz)
         except (ZoneInfoNotFoundError, ValueError):
             raise MapperError(f"unknown time zone {args.tz!r}; use a name like Europe/Berlin") from None
+    if args.crs and args.log:
+        raise MapperError("--crs goes with a readings file, not with --log (the track gives the positions)")
     if args.track and not args.log:
         raise MapperError("--track goes with --log (a timed meter log)")
     if args.log:
         if not args.track:
             raise MapperError("--log needs --track TRACK: positions to place the log's readings by time")
         return _import_log(args, tz)
+    vector = is_vector_readings(args.file)
+    if args.layer is not None and not vector:
+        raise MapperError("--layer goes with a GeoPackage (or another GIS file) of readings", where=args.file)
     with Survey.open(args.survey, write=True) as survey:
-        if is_conditions_csv(args.file):
+        if vector:
+            parsed = parse_readings_vector(
+                args.file,
+                survey.site,
+                layer=args.layer,
+                crs=args.crs,
+                unit=args.unit or None,
+                sign_convention=survey.sign_convention,
+                plan_labels=[p.label for p in survey.plan.points],
+                meters=list(survey.meters()),
+                skip_bad=args.skip_bad,
+                tz=tz,
+            )
+        elif is_conditions_csv(args.file):
+            if args.crs:
+                raise MapperError("--crs goes with positions; a conditions file has none", where=args.file)
             notes = parse_conditions_csv(args.file, tz)
             survey.add_condition_notes([(n.rh_percent, n.temperature_c, n.note, n.time) for n in notes])
             say(f"imported {plural(len(notes), 'condition note')} into {survey.path}")
             return 0
-        parsed = parse_readings_csv(
-            args.file,
-            survey.site,
-            unit=args.unit or None,
-            sign_convention=survey.sign_convention,
-            plan_labels=[p.label for p in survey.plan.points],
-            meters=list(survey.meters()),
-            skip_bad=args.skip_bad,
-            tz=tz,
-        )
+        else:
+            parsed = parse_readings_csv(
+                args.file,
+                survey.site,
+                unit=args.unit or None,
+                sign_convention=survey.sign_convention,
+                plan_labels=[p.label for p in survey.plan.points],
+                meters=list(survey.meters()),
+                skip_bad=args.skip_bad,
+                tz=tz,
+                crs=args.crs,
+            )
         delay = float(os.environ.get("MAPPER_TEST_IMPORT_DELAY", "0") or 0)
         if delay:  # test hook: slow the open transaction down so a test can kill the process in it
             survey.conn.set_progress_handler(lambda: _slow_down(survey, delay), 1000)
+        label, noun = ("feature", "feature") if vector else ("line", "data row")
         if not parsed.readings:
-            out = write_rejected(args.file, parsed.rejected) if parsed.rejected else None
-            what = (f"all {len(parsed.rejected)} data rows are bad (see {out})" if out
+            out = write_rejected(args.file, parsed.rejected, label=label) if parsed.rejected else None
+            what = (f"all {len(parsed.rejected)} {noun}s are bad (see {out})" if out
                     else "the file has no data rows")
             raise MapperError(f"nothing imported: {what}; the survey is unchanged", where=args.file)
-        digest = _refuse_repeat(survey, args, [args.file])
+        digest = _refuse_repeat(survey, args, [str(p) for p in input_files(args.file)])
         stored = survey.add_readings(parsed.readings, source=os.path.basename(args.file), digest=digest)
         if parsed.rejected:
-            out = write_rejected(args.file, parsed.rejected)
-            warn(f"{len(parsed.rejected)} bad rows not imported; see {out}")
+            out = write_rejected(args.file, parsed.rejected, label=label)
+            warn(f"{len(parsed.rejected)} bad {'features' if vector else 'rows'} not imported; see {out}")
         say(f"imported {_count(len(stored), 'reading')} into {survey.path}")
     return 0
 

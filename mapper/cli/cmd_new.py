@@ -4,6 +4,7 @@ from __future__ import annotations
 
 from mapper.cli.commands import summary
 from mapper.cli.common import positive_float, role_arg, say, threshold_arg, unit_arg, warn
+from mapper.errors import MapperError
 from mapper.plan.grid import DEFAULT_SPACING_M, LAYOUTS
 from mapper.survey.create import DEFAULT_THRESHOLD_V_PER_M, create_survey
 from mapper.units import SIGN_CONVENTIONS, format_field, resolve_threshold
@@ -33,13 +34,24 @@ def register(sub) -> None:
         help="for vector site files: role of a layer (outline, zone, ignore or an asset kind)",
     )
     p.add_argument(
-        "--site-units", default="m", choices=["m", "cm", "mm", "ft", "in"],
+        "--site-units", default=None, choices=["m", "cm", "mm", "ft", "in"],
         help="length unit of a CAD drawing without a CRS (default m)",
+    )
+    p.add_argument(
+        "--site-crs", metavar="EPSG:NNNN",
+        help="projected CRS a drawing without one is drawn in (drawing units are the CRS's units)",
+    )
+    p.add_argument(
+        "--control-points", metavar="FILE.csv",
+        help="CSV x,y,lon,lat (drawing units, WGS 84 degrees) georeferencing a drawing without a CRS",
     )
     p.set_defaults(func=run)
 
 
 def run(args) -> int:
+    if args.site_crs and args.site_units:
+        raise MapperError("--site-units goes with a drawing in site units; with --site-crs the drawing "
+                          "units are the CRS's units")
     with create_survey(
         args.survey,
         args.site,
@@ -50,7 +62,9 @@ def run(args) -> int:
         threshold_v_per_m=resolve_threshold(args.threshold, args.unit),
         roles=dict(args.role),
         operator=args.operator,
-        site_units=args.site_units,
+        site_units=args.site_units or "m",
+        site_crs=args.site_crs,
+        control_points=args.control_points,
     ) as survey:
         site, plan = survey.site, survey.plan
         for message in site.warnings:

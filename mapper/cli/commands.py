@@ -9,7 +9,7 @@ from __future__ import annotations
 #: Sub-commands in the order ``mapper --help`` lists them: name -> (module in ``mapper.cli``, help).
 COMMANDS: dict[str, tuple[str, str]] = {
     'new': ('cmd_new', 'create a survey from a site file and plan its walking grid'),
-    'import': ('cmd_import', 'import readings (or condition notes) from a CSV file, all or nothing'),
+    'import': ('cmd_import', 'import readings (or condition notes) from a CSV or GIS point layer, all or nothing'),
     'info': ('cmd_info', "show a survey's site, plan, readings and conditions"),
     'meter': ('cmd_meter', 'meter profiles and calibration checks'),
     'review': ('cmd_review', 'list readings flagged for review; exclude a reading from the map or bring it back'),

@@ -10,7 +10,7 @@ import math
 import re
 import tomllib
 import warnings
-from collections.abc import Mapping
+from collections.abc import Mapping, Sequence
 from pathlib import Path
 from zoneinfo import ZoneInfo, ZoneInfoNotFoundError
 
@@ -32,7 +32,14 @@ VECTOR_SUFFIXES = (".gpkg", ".geojson", ".json", ".shp", ".dxf", ".fgb", ".kml",
 SPECIAL_ROLES = ("outline", "zone", "ignore")
 
 
-def load_site(path: str | Path, roles: Mapping[str, str] | None = None, units: str = "m") -> Site:
+def load_site(
+    path: str | Path,
+    roles: Mapping[str, str] | None = None,
+    units: str = "m",
+    *,
+    site_crs: str | None = None,
+    control_points: str | Path | None = None,
+) -> Site:
     """Load a site from a TOML site file or a vector file.
 
     Parameters
@@ -45,16 +52,31 @@ def load_site(path: str | Path, roles: Mapping[str, str] | None = None, units: s
     units : str
         For vector files without a CRS (CAD drawings): length unit of the coordinates
         (``m``, ``cm``, ``mm``, ``ft``, ``in``).
+    site_crs : str, optional
+        For a vector file without a CRS (a DXF): the projected CRS its coordinates are in, e.g.
+        ``"EPSG:32633"``; drawing units are that CRS's units.
+    control_points : str or Path, optional
+        For a vector file without a CRS: a CSV of control points ``x,y,lon,lat`` (drawing units,
+        WGS 84 degrees), two or more, to georeference it as a TOML site's ``[[control_point]]``.
     """
     path = Path(path)
     if not path.exists():
         raise MapperError("site file not found", where=str(path))
     if path.suffix.lower() == ".toml":
+        if site_crs is not None or control_points is not None:
+            option = "--site-crs" if site_crs is not None else "--control-points"
+            raise MapperError(f"{option} is for a drawing or GIS file; a TOML site file gives 'crs' and "
+                              "[[control_point]] tables itself", where=str(path))
         return site_from_toml_text(read_utf8(path, "site file"), source=str(path))
     if path.suffix.lower() in VECTOR_SUFFIXES:
         if units not in LENGTH_UNITS:
             raise MapperError(f"unknown units {units!r}; accepted: {', '.join(LENGTH_UNITS)}")
-        return site_from_vector_file(path, roles or {}, LENGTH_UNITS[units])
+        if site_crs is not None and control_points is not None:
+            raise MapperError("give --site-crs (the drawing is drawn in that CRS) or --control-points "
+                              "(fit the drawing to the ground), not both")
+        points = read_control_points(control_points, LENGTH_UNITS[units]) if control_points is not None else []
+        return site_from_vector_file(path, roles or {}, LENGTH_UNITS[units], site_crs=site_crs,
+                                     control_points=points)
     raise MapperError(
         f"unknown site file type {path.suffix!r}; use a .toml site file or one of {', '.join(VECTOR_SUFFIXES)}",
         where=str(path),
@@ -319,13 +341,22 @@ def _finish(name, outline, assets, zones, points, crs, source, georef: Georef | 
     )
 
 
-def site_from_vector_file(path: Path, roles: Mapping[str, str], factor: float = 1.0) -> Site:
+def site_from_vector_file(
+    path: Path,
+    roles: Mapping[str, str],
+    factor: float = 1.0,
+    *,
+    site_crs: str | None = None,
+    control_points: Sequence[ControlPoint] = (),
+) -> Site:
     """Build a site from a vector file (outdoor sites, CAD floor plans).
 
     Geographic data (lon/lat) is projected to its UTM zone; projected data keeps its CRS. Site
-    coordinates are the projected ones less a round origin, and the georeference is that
-    translation. Data without a CRS (typical of DXF) is taken as site coordinates, multiplied by
-    ``factor`` (metres per drawing unit).
+    coordinates are the projected ones less a round origin, converted to metres, and the
+    georeference is that translation (and the unit's scale). Data without a CRS (typical of DXF)
+    is read in ``site_crs`` when given (drawing units are its units), else taken as site
+    coordinates multiplied by ``factor`` (metres per drawing unit), georeferenced by
+    ``control_points`` (site metres and WGS 84 degrees) when there are two or more.
     """
     layers, frames = _read_layers(path)
     unknown = sorted(set(roles) - set(layers))
@@ -340,6 +371,7 @@ def site_from_vector_file(path: Path, roles: Mapping[str, str], factor: float = 
     for frame in frames[1:]:
         if frame.crs != crs:
             frame.to_crs(crs, inplace=True)
+    crs = _given_crs(crs, site_crs, control_points, path)
     outline_parts, assets, zones, z_notes = [], [], [], []
     for frame in frames:
         for index, row in frame.iterrows():
@@ -405,19 +437,102 @@ def site_from_vector_file(path: Path, roles: Mapping[str, str], factor: float = 
             zones = [Zone(z.name, _project(z.geometry, crs, target), z.limit_v_per_m, z.kind) for z in zones]
         else:
             frames_crs = crs.to_string()
+        # metres per CRS unit (1 for UTM; 0.3048 for a CRS in feet)
+        unit_m = float(crs.axis_info[0].unit_conversion_factor) if not crs.is_geographic else 1.0
         minx, miny = outline.bounds[:2]
-        ox, oy = float(np.floor(minx)), float(np.floor(miny))  # whole metres: site x, y start near 0
-        outline = affinity.translate(outline, -ox, -oy)
-        assets = [dataclasses.replace(a, geometry=affinity.translate(a.geometry, -ox, -oy)) for a in assets]
-        zones = [Zone(z.name, affinity.translate(z.geometry, -ox, -oy), z.limit_v_per_m, z.kind) for z in zones]
-        georef = Georef(crs=frames_crs, a=1.0, b=0.0, tx=ox, ty=oy, residuals_m=())
+        ox, oy = float(np.floor(minx)), float(np.floor(miny))  # whole units: site x, y start near 0
+
+        def to_site(geom: BaseGeometry) -> BaseGeometry:
+            return _scale(affinity.translate(geom, -ox, -oy), unit_m)
+
+        outline = to_site(outline)
+        assets = [dataclasses.replace(a, geometry=to_site(a.geometry)) for a in assets]
+        zones = [Zone(z.name, to_site(z.geometry), z.limit_v_per_m, z.kind) for z in zones]
+        georef = Georef(crs=frames_crs, a=1.0 / unit_m, b=0.0, tx=ox, ty=oy, residuals_m=())
     elif factor != 1.0:
         outline = _scale(outline, factor)
         assets = [dataclasses.replace(a, geometry=_scale(a.geometry, factor)) for a in assets]
         zones = [Zone(z.name, _scale(z.geometry, factor), z.limit_v_per_m, z.kind) for z in zones]
     name = path.stem.replace("_", " ")
-    site = _finish(name, outline, assets, zones, [], georef.crs if georef else None, str(path), georef)
+    site = _finish(name, outline, assets, zones, list(control_points), georef.crs if georef else None,
+                   str(path), georef)
     return dataclasses.replace(site, warnings=site.warnings + tuple(z_notes[:1]))
+
+
+def _given_crs(stated, site_crs: str | None, control_points: Sequence[ControlPoint], path: Path):
+    """The CRS a vector file is read in: its own, or ``site_crs`` for a drawing without one."""
+    from pyproj import CRS
+
+    if control_points and stated is not None:
+        raise MapperError(f"the file states its CRS ({CRS.from_user_input(stated).to_string()}) and is "
+                          "georeferenced by it; --control-points are for a drawing without one", where=str(path))
+    if site_crs is None:
+        return stated
+    try:
+        wanted = CRS.from_user_input(site_crs)
+    except Exception as exc:  # pyproj's CRSError carries a long message
+        raise MapperError(f"unknown CRS {site_crs!r}: {str(exc).splitlines()[0]}; give e.g. EPSG:32633",
+                          where="--site-crs") from None
+    if not wanted.is_projected:
+        raise MapperError(f"{site_crs} is not a projected CRS; a drawing is drawn in a projected CRS "
+                          "(e.g. a UTM zone, EPSG:326NN)", where="--site-crs")
+    if stated is not None and CRS.from_user_input(stated) != wanted:
+        raise MapperError(f"the file states its CRS ({CRS.from_user_input(stated).to_string()}); "
+                          f"--site-crs {site_crs} is for a drawing without one", where=str(path))
+    return wanted
+
+
+def read_control_points(path: str | Path, factor: float = 1.0) -> list[ControlPoint]:
+    """Control points from a CSV with columns ``x,y,lon,lat`` (any letter case).
+
+    Parameters
+    ----------
+    path : str or Path
+        CSV file, UTF-8, header first.
+    factor : float
+        Metres per drawing unit of ``x`` and ``y``.
+
+    Returns
+    -------
+    list of ControlPoint
+        In site metres and WGS 84 degrees.
+    """
+    import csv
+
+    path = Path(path)
+    if not path.exists():
+        raise MapperError("control points file not found", where=str(path))
+    lines = read_utf8(path, "control points file").splitlines()
+    try:
+        rows = list(csv.reader(lines))
+    except csv.Error as exc:
+        raise MapperError(f"not readable as CSV: {exc}", where=str(path)) from None
+    header = [h.strip().lower() for h in rows[0]] if rows else []
+    needed = ("x", "y", "lon", "lat")
+    missing = [name for name in needed if name not in header]
+    if missing:
+        raise MapperError(f"header needs x,y,lon,lat columns (missing {','.join(missing)})", where=f"{path}:1")
+    points = []
+    for number, cells in enumerate(rows[1:], start=2):
+        if not any(c.strip() for c in cells):
+            continue
+        values = {}
+        for name in needed:
+            index = header.index(name)
+            text = cells[index].strip() if index < len(cells) else ""
+            try:
+                values[name] = float(text)
+            except ValueError:
+                values[name] = math.nan
+            if not math.isfinite(values[name]):
+                raise MapperError(f"{name} must be a number, got {text!r}", where=f"{path}:{number}: {name}")
+        if not -90.0 <= values["lat"] <= 90.0 or not -180.0 <= values["lon"] <= 180.0:
+            raise MapperError(f"lon {values['lon']:g}, lat {values['lat']:g} is not on the Earth "
+                              "(lon -180..180, lat -90..90)", where=f"{path}:{number}: lat")
+        points.append(ControlPoint(values["x"] * factor, values["y"] * factor, values["lon"], values["lat"]))
+    if len(points) < 2:
+        raise MapperError(f"{len(points)} control points; a georeference needs at least 2", where=str(path))
+    return points
 
 
 def _read_layers(path: Path) -> tuple[list[str], list]:

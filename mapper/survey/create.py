@@ -28,6 +28,8 @@ def create_survey(
     roles: Mapping[str, str] | None = None,
     operator: str = "",
     site_units: str = "m",
+    site_crs: str | None = None,
+    control_points: str | Path | None = None,
 ) -> Survey:
     """Create a survey file from a site file and open it for writing.
 
@@ -53,11 +55,15 @@ def create_survey(
         Who surveys.
     site_units : str
         Length unit of a vector site file without a CRS (CAD drawings).
+    site_crs : str, optional
+        Projected CRS a drawing without one is drawn in (its units are the drawing's).
+    control_points : str or Path, optional
+        CSV ``x,y,lon,lat`` georeferencing a drawing without a CRS.
     """
 
     if sign_convention not in SIGN_CONVENTIONS:
         raise MapperError(f"unknown sign convention {sign_convention!r}; accepted: {', '.join(SIGN_CONVENTIONS)}")
-    site = load_site(site_path, roles, site_units)
+    site = load_site(site_path, roles, site_units, site_crs=site_crs, control_points=control_points)
     plan = plan_grid(site, spacing_m, layout)
     site_path = Path(site_path)
     text = read_utf8(site_path, "site file") if site_path.suffix.lower() == ".toml" else None

@@ -75,7 +75,7 @@ BAD_ROWS = [
     ("x,y,value\n1,1,5\n", "unit"),
     ("x,y,value,unit,time\n1,1,5,V/m,yesterday\n", "ISO 8601"),
     ("x,y,value,unit,kind\n1,1,5,V/m,guess\n", "unknown kind"),
-    ("a,b,c\n1,2,3\n", "x,y or lon,lat"),
+    ("a,b,c\n1,2,3\n", "accepted: x,y, easting,northing"),
 ]
 
 
