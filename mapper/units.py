@@ -55,7 +55,8 @@ def canonical_unit(unit: str) -> str:
         return text
     if text.startswith("m") and text.lower().startswith("mv/"):
         # letter case is the only difference between milli and mega: refuse rather than guess
-        raise MapperError(f"unit {unit!r} is ambiguous; write MV/m for megavolts per metre (millivolt units are not accepted)")
+        raise MapperError(f"unit {unit!r} is ambiguous; write MV/m for megavolts per metre (millivolt units are not "
+                          "accepted)")
     name = _UNIT_LOOKUP.get(text.lower())
     if name is None:
         raise MapperError(f"unknown field unit {unit!r}; accepted: {', '.join(FIELD_UNITS)}")

@@ -635,7 +635,8 @@ class MainScreen(Screen):
             rh, temp = parse_conditions(values["rh"], values["temp"])
             s.add_conditions(rh, temp, values["note"].strip())
             msg = "saved conditions " + " · ".join(
-                part for part in (f"RH {rh:g} %" if rh is not None else "", f"{temp:g} °C" if temp is not None else "") if part
+                part for part in (f"RH {rh:g} %" if rh is not None else "",
+                                  f"{temp:g} °C" if temp is not None else "") if part
             )
             if rh is not None and rh < DRY_AIR_RH_PERCENT:
                 msg += f" · DRY AIR (below {DRY_AIR_RH_PERCENT:g} %): expect high charging"

@@ -147,7 +147,8 @@ def run_transaction(conn: Any, body: Callable[[Any], T], *, isolation: str = "SE
                 "mapper_archive_writer role (docs/archive.md)"
             ) from None
         except pg.OperationalError as exc:
-            raise MapperError(f"lost the connection to the archive; nothing was written ({clean_message(exc)})") from None
+            raise MapperError(f"lost the connection to the archive; nothing was written "
+                              f"({clean_message(exc)})") from None
     raise AssertionError("unreachable")
 
 

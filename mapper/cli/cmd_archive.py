@@ -61,7 +61,8 @@ def _survey_id(text: str) -> int:
     try:
         value = int(text)
     except ValueError:
-        raise argparse.ArgumentTypeError(f"{text!r} is not a survey id (a whole number from 'mapper archive list')") from None
+        raise argparse.ArgumentTypeError(f"{text!r} is not a survey id (a whole number from 'mapper archive "
+                                         "list')") from None
     if value < 1:
         raise argparse.ArgumentTypeError(f"{text!r} is not a survey id (ids start at 1)")
     return value

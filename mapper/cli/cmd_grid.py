@@ -27,13 +27,16 @@ def register(sub) -> None:
     p.add_argument("--cell", type=positive_float, metavar="METRES", help="grid cell size in metres")
     p.add_argument("--height", type=positive_float, metavar="METRES",
                    help="map the field at this height above the floor (physical model only)")
-    p.add_argument("--neighbors", type=neighbors_arg, metavar="K", help="moving neighbourhood size (default: automatic)")
+    p.add_argument("--neighbors", type=neighbors_arg, metavar="K", help="moving neighbourhood size (default: "
+                                                                        "automatic)")
     v = p.add_argument_group("variogram (kriging methods; used as is, not fitted)")
     v.add_argument("--variogram", choices=MODELS, metavar="MODEL", help=f"model: {', '.join(MODELS)}")
     v.add_argument("--sill", type=float, metavar="S", help="partial sill above the nugget, (V/m)²")
-    v.add_argument("--range", type=float, metavar="R", help="range in metres (practical range for exponential and gaussian)")
+    v.add_argument("--range", type=float, metavar="R", help="range in metres (practical range for exponential and "
+                                                            "gaussian)")
     v.add_argument("--nugget", type=float, default=0.0, metavar="N", help="nugget, (V/m)² (default 0)")
-    v.add_argument("--angle", type=float, default=0.0, metavar="DEG", help="azimuth of the major axis, degrees counter-clockwise from +x")
+    v.add_argument("--angle", type=float, default=0.0, metavar="DEG", help="azimuth of the major axis, degrees "
+                                                                           "counter-clockwise from +x")
     v.add_argument("--ratio", type=float, default=1.0, metavar="R", help="anisotropy ratio major/minor range (>= 1)")
     v.add_argument("--slope", type=float, metavar="S", help="slope of the linear model, (V/m)² per metre")
     v.add_argument("--nu", type=float, default=1.5, metavar="NU", help="matern smoothness (default 1.5)")

@@ -48,7 +48,8 @@ def run(args) -> int:
     else:
         say("georef    none (local site grid in metres)")
     plan = info["plan"]
-    say(f"plan      {info['points']} points, {plan['layout']} at {plan['spacing_m']:g} m, walk {plan['walk_length_m']:.0f} m")
+    say(f"plan      {info['points']} points, {plan['layout']} at {plan['spacing_m']:g} m, walk "
+        f"{plan['walk_length_m']:.0f} m")
     say(f"visited   {info['visited']} of {info['points']} points")
     by_kind = info["readings_by_kind"]
     kinds = ", ".join(f"{k} {v}" for k, v in sorted(by_kind.items()))

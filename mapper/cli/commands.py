@@ -17,7 +17,8 @@ COMMANDS: dict[str, tuple[str, str]] = {
     'hotspots': ('cmd_hotspots', 'list hotspots, keep-away violations and where to measure next'),
     'sources': ('cmd_sources', 'list the likely charged objects (physical field model), largest first'),
     'compare': ('cmd_compare', 'compare two surveys of one site (before / after a change)'),
-    'export': ('cmd_export', 'write a GeoPackage (readings, site, zones, assets, contours, bands, hotspots, advice) and a GeoTIFF of the field beside it'),
+    'export': ('cmd_export', 'write a GeoPackage (readings, site, zones, assets, contours, bands, hotspots, advice) '
+                             'and a GeoTIFF of the field beside it'),
     'report': ('cmd_report', 'write a PDF report: the field map, the findings and the cautions'),
     'archive': ('cmd_archive', 'the shared survey archive on PostgreSQL/PostGIS (init, push, list, pull, history)'),
     'demo': ('cmd_demo', 'run everything on the bundled indoor sample site'),

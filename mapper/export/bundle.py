@@ -56,7 +56,8 @@ class ExportResult:
         if products.findings is not None:
             f = products.findings
             out.append(
-                f"at {format_field(products.threshold_v_per_m, products.display_unit)}: {plural(len(f.hotspots), 'hotspot')}, "
+                f"at {format_field(products.threshold_v_per_m, products.display_unit)}: "
+                f"{plural(len(f.hotspots), 'hotspot')}, "
                 f"{plural(len(f.violations), 'keep-away violation')}, {plural(len(f.advice), 'suggested reading')}"
             )
         return out

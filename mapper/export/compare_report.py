@@ -149,7 +149,8 @@ def draw_comparison_page(fig: Figure, cmp: Comparison, before: Products, after: 
         span = p.time_span()
         return local_span(span, p.site.timezone) if span else "no readings"
 
-    fig.text(0.04, 0.928, f"Before: {when(before)}, {plural(len(before.readings), 'reading')}  ·  after: {when(after)}, "
+    fig.text(0.04, 0.928, f"Before: {when(before)}, {plural(len(before.readings), 'reading')}  ·  after: "
+                          f"{when(after)}, "
              f"{plural(len(after.readings), 'reading')}", fontsize=9, va="top", color="#333333")
     fig.text(0.04, 0.905, f"Action level {format_field(t, unit)}  ·  before: {_method(before)}  ·  after: "
              f"{_method(after)}", fontsize=9, va="top", color="#333333")

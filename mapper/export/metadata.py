@@ -100,7 +100,8 @@ def metadata_rows(products: Products, exported_utc: str | None = None) -> list[M
         add("meter", f"{prefix} serial", m.serial)
         add("meter", f"{prefix} specified_distance", _num(m.distance_m), "m")
         add("meter", f"{prefix} display_unit", m.unit)
-        add("meter", f"{prefix} calibration_date", m.calibration_date.isoformat() if m.calibration_date else "not recorded")
+        add("meter", f"{prefix} calibration_date",
+            m.calibration_date.isoformat() if m.calibration_date else "not recorded")
         add("meter", f"{prefix} due_date", m.due_date.isoformat() if m.due_date else "not recorded")
         add("meter", f"{prefix} gain", _num(m.gain))
         add("meter", f"{prefix} offset", _num(m.offset_v_per_m), "V/m")
@@ -237,7 +238,8 @@ def write_gdal_metadata(conn, rows: list[MetaRow], now_utc: str) -> None:
     for table in ("gpkg_metadata", "gpkg_metadata_reference"):
         register_extension(conn, table, "gpkg_metadata", definition)
     cur = conn.execute(
-        "INSERT INTO gpkg_metadata (md_scope, md_standard_uri, mime_type, metadata) VALUES ('dataset', ?, 'text/xml', ?)",
+        "INSERT INTO gpkg_metadata (md_scope, md_standard_uri, mime_type, metadata) "
+        "VALUES ('dataset', ?, 'text/xml', ?)",
         (GDAL_MD_URI, gdal_metadata_xml(metadata_items(rows))))
     conn.execute(
         "INSERT INTO gpkg_metadata_reference (reference_scope, table_name, column_name, row_id_value, timestamp, "

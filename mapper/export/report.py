@@ -530,7 +530,8 @@ def draw_findings_page(fig: Figure, products: Products) -> None:
 
     col.heading("Meter and calibration")
     for m in p.meters:
-        cal = (f"calibrated {m.calibration_date.isoformat()}" if m.calibration_date else "calibration date not recorded")
+        cal = (f"calibrated {m.calibration_date.isoformat()}" if m.calibration_date
+               else "calibration date not recorded")
         due = f", due {m.due_date.isoformat()}" if m.due_date else ""
         fit = (f", gain {m.gain:.4g}, offset {format_field(m.offset_v_per_m, unit, 3)}" if m.calibrated else "")
         col.para(f"{m.id}: {m.description or 'no description'}"
@@ -581,7 +582,8 @@ def draw_findings_page(fig: Figure, products: Products) -> None:
             if g.params.get("std_scale") is not None:
                 col.para(f"† {g.method} gives no standard deviation of its own: the map's is the ordinary "
                          f"kriging standard deviation scaled locally (site-wide factor {g.params['std_scale']:.3g}, "
-                         "set near each place by the nearby leave-one-out errors) so that its RMS z is 1 by construction; mean z and the share of |z| <= 1.96 remain the checks.", 6.8,
+                         "set near each place by the nearby leave-one-out errors) so that its RMS z is 1 by "
+                         "construction; mean z and the share of |z| <= 1.96 remain the checks.", 6.8,
                          color="#444444")
 
     # Right: the standard deviation map.

@@ -108,7 +108,8 @@ def _fit(xy: np.ndarray, z: np.ndarray, values: np.ndarray, kind: str, fast: boo
     leave-one-out RMSE of ``kind`` kriging of ``values`` with the :data:`DEFAULT_NEIGHBORS`
     nearest readings, on up to :data:`VARIOGRAM_CHOICE_POSITIONS` positions. Cross-validation is
     the usual way to compare variogram models (Isaaks & Srivastava 1989, ch. 15 "Cross
-    validation"; Cressie 1993, sec. 2.6; chapter and section from memory); the goodness of fit to the binned semivariance cannot see the behaviour below
+    validation"; Cressie 1993, sec. 2.6; chapter and section from memory); the goodness of fit to the binned
+    semivariance cannot see the behaviour below
     the first lag bin (the data spacing), which decides how kriging weights the nearest readings.
     The fast path fits the exponential model only. Returns the fit and a record of the choice.
     """

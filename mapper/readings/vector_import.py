@@ -249,7 +249,10 @@ def _cell(value) -> str:
 
 
 #: GDAL's text form of a date-time (``2026/11/17 07:30:00+00``), as it writes one to a Shapefile.
-_GDAL_TIME = re.compile(r"^\s*(\d{4})/(\d{2})/(\d{2})[ T](\d{2}:\d{2}(?::\d{2}(?:\.\d+)?)?)\s*(?:([+-]\d{2})(?::?(\d{2}))?)?\s*$")
+_GDAL_TIME = re.compile(
+    r"^\s*(\d{4})/(\d{2})/(\d{2})[ T](\d{2}:\d{2}(?::\d{2}(?:\.\d+)?)?)"
+    r"\s*(?:([+-]\d{2})(?::?(\d{2}))?)?\s*$"
+)
 
 
 def _iso_time_text(text: str) -> str:

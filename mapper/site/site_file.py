@@ -204,8 +204,10 @@ def site_from_toml_text(text: str, source: str = "<site>") -> Site:
                 name=str(item.get("name", f"{kind} {i + 1}")),
                 kind=kind,
                 geometry=geom,
-                sensitive=_flag(item, "sensitive", kind in SENSITIVE_KINDS, _where(source, text, "asset", i, "sensitive")),
-                walkable=_flag(item, "walkable", kind not in BLOCKING_KINDS, _where(source, text, "asset", i, "walkable")),
+                sensitive=_flag(item, "sensitive", kind in SENSITIVE_KINDS,
+                                _where(source, text, "asset", i, "sensitive")),
+                walkable=_flag(item, "walkable", kind not in BLOCKING_KINDS,
+                               _where(source, text, "asset", i, "walkable")),
                 height_m=_height(item, factor, _where(source, text, "asset", i, "height_m")),
             )
         )
@@ -248,7 +250,8 @@ def site_from_toml_text(text: str, source: str = "<site>") -> Site:
         # the georeference refused the CRS or the control points: point at the file
         key = ("site", 0, "crs") if "CRS" in exc.message else ("control_point", 0, "x")
         raise MapperError(exc.message, where=_where(source, text, *key)) from None
-    return dataclasses.replace(site, timezone=_timezone(head.get("timezone"), _where(source, text, "site", 0, "timezone")))
+    where = _where(source, text, "site", 0, "timezone")
+    return dataclasses.replace(site, timezone=_timezone(head.get("timezone"), where))
 
 
 def _tables(data: dict, name: str, source: str, text: str) -> list[dict]:
@@ -366,7 +369,8 @@ def site_from_vector_file(
     unknown = [name for name in unknown if name not in cad_layers]
     if unknown:
         known = ", ".join(sorted(set(layers) | cad_layers))
-        raise MapperError(f"--role names layer {unknown[0]!r}, which the file does not have; layers: {known}", where=str(path))
+        raise MapperError(f"--role names layer {unknown[0]!r}, which the file does not have; layers: "
+                          f"{known}", where=str(path))
     crs = frames[0].crs
     for frame in frames[1:]:
         if frame.crs != crs:
@@ -611,7 +615,8 @@ def _height(item, factor: float, where: str) -> float | None:
     """An asset's optional ``height_m`` above the floor, metres (a number; never scaled by
     ``units``, it is always in metres)."""
     value = item.get("height_m") if hasattr(item, "get") else None
-    if value is None or (isinstance(value, float) and np.isnan(value)) or (isinstance(value, str) and not value.strip()):
+    if (value is None or (isinstance(value, float) and np.isnan(value))
+            or (isinstance(value, str) and not value.strip())):
         return None
     if isinstance(value, str):
         try:
@@ -622,7 +627,8 @@ def _height(item, factor: float, where: str) -> float | None:
         raise MapperError(f"'height_m' must be a number of metres, got {value!r}", where=where)
     h = float(value)
     if not np.isfinite(h) or not 0 < h <= MAX_ASSET_HEIGHT_M:
-        raise MapperError(f"'height_m' must be above the floor and at most {MAX_ASSET_HEIGHT_M:g} m, got {value!r}", where=where)
+        raise MapperError(f"'height_m' must be above the floor and at most {MAX_ASSET_HEIGHT_M:g} m, got "
+                          f"{value!r}", where=where)
     return h
 
 

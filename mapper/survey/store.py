@@ -219,7 +219,8 @@ class Survey:
                 raise _damaged(path, f"schema version {version}")
             if version > SCHEMA_VERSION:
                 raise MapperError(
-                    f"survey file has schema version {version}, newer than this mapper ({SCHEMA_VERSION}); upgrade mapper",
+                    f"survey file has schema version {version}, newer than this mapper ({SCHEMA_VERSION}); upgrade "
+                    "mapper",
                     where=str(path),
                 )
             if version < SCHEMA_VERSION and write:

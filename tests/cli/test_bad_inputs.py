@@ -105,11 +105,15 @@ BAD_COMMANDS = [
     (["import", "{survey}", "{in}/cond_dup.csv"], ["cond_dup.csv:1", "'rh_percent' appears twice"]),
     (["import", "{survey}", "{in}"], ["is a folder"]),
     # meter logs and tracks
-    (["import", "{survey}", "{in}/binary.csv", "--log", "--track", "{in}/track.csv"], ["binary.csv:1", "log is not UTF-8"]),
-    (["import", "{survey}", "{in}/log.csv", "--log", "--track", "{in}/binary.csv"], ["binary.csv:1", "track file is not UTF-8"]),
-    (["import", "{survey}", "{in}/log.csv", "--log", "--track", "{in}/gpx_binary.gpx"], ["gpx_binary.gpx:1", "GPX file is not UTF-8"]),
+    (["import", "{survey}", "{in}/binary.csv", "--log", "--track", "{in}/track.csv"],
+     ["binary.csv:1", "log is not UTF-8"]),
+    (["import", "{survey}", "{in}/log.csv", "--log", "--track", "{in}/binary.csv"], ["binary.csv:1", "track file is "
+        "not UTF-8"]),
+    (["import", "{survey}", "{in}/log.csv", "--log", "--track", "{in}/gpx_binary.gpx"],
+     ["gpx_binary.gpx:1", "GPX file is not UTF-8"]),
     # meters
-    (["meter", "check", "{survey}", "meter1", "{in}/cal_binary.csv"], ["cal_binary.csv:2", "calibration file is not UTF-8"]),
+    (["meter", "check", "{survey}", "meter1", "{in}/cal_binary.csv"], ["cal_binary.csv:2", "calibration file is not "
+        "UTF-8"]),
     (["meter", "add", "{survey}", "meter1"], ["'meter1' already exists", "nothing stored"]),
     # field model
     (["grid", "{survey}", "--neighbors", "1"], ["--neighbors", "at least 3"]),
@@ -123,7 +127,8 @@ BAD_COMMANDS = [
     # site files
     (["new", "{tmp}/n.survey", "--site", "{in}/site_binary.toml"], ["site_binary.toml:1", "not UTF-8"]),
     (["new", "{tmp}/n.survey", "--site", "{in}/site_badcrs.toml"], ["site_badcrs.toml:3: [site] 'crs'", "unknown CRS"]),
-    (["new", "{tmp}/n.survey", "--site", str(SAMPLES / "east_yard.geojson"), "--role", "walls=outline"], ["layer 'walls'"]),
+    (["new", "{tmp}/n.survey", "--site", str(SAMPLES / "east_yard.geojson"), "--role", "walls=outline"],
+     ["layer 'walls'"]),
     (["new", "{tmp}/n.survey", "--site", str(SAMPLES / "east_yard.geojson"), "--role", "=outline"], ["LAYER=ROLE"]),
 ]
 
@@ -180,7 +185,8 @@ def _checkpointed(path: Path) -> Path:
 @pytest.mark.parametrize("damage", [_truncated, _overwritten])
 @pytest.mark.parametrize(
     "argv",
-    [["info"], ["review", "--exclude", "1"], ["meter", "add", "{s}", "m2"], ["grid"], ["hotspots"], ["import", "{s}", "{csv}"]],
+    [["info"], ["review", "--exclude", "1"], ["meter", "add", "{s}", "m2"], ["grid"], ["hotspots"],
+     ["import", "{s}", "{csv}"]],
     ids=["info", "review", "meter-add", "grid", "hotspots", "import"],
 )
 def test_damaged_survey_is_refused_before_any_write(capsys, survey, tmp_path, damage, argv):

@@ -101,7 +101,8 @@ KEYS = ["name", "units", "crs", "timezone", "wkt", "kind", "sensitive", "walkabl
         "x", "y", "lon", "lat", "asset", "zone", "control_point"]
 WKT = st.one_of(
     st.sampled_from([
-        "POLYGON ((0 0, 10 0, 10 6, 0 6, 0 0))", "POLYGON ((0 0, 10 0, 10 6, 0 6))", "POLYGON Z ((0 0 0, 1 0 0, 1 1 0, 0 0 0))",
+        "POLYGON ((0 0, 10 0, 10 6, 0 6, 0 "
+        "0))", "POLYGON ((0 0, 10 0, 10 6, 0 6))", "POLYGON Z ((0 0 0, 1 0 0, 1 1 0, 0 0 0))",
         "POINT (1 1)", "POINT (inf 1)", "LINESTRING (1 1, 8 1)", "POLYGON ((0 0, 10 10, 10 0, 0 10, 0 0))",
         "POLYGON EMPTY", "MULTIPOLYGON (((0 0, 1 0, 1 1, 0 0)))", "GEOMETRYCOLLECTION (POINT (1 1))", "POLYGON ((",
     ]),

@@ -85,16 +85,21 @@ def test_cell_longer_than_the_csv_field_limit(capsys, box_survey, tmp_path):
 BAD_SITES = [
     # (site file text, words of the error line)
     ('[site]\nname = "Box"\nunits = ["m"]\n' + OUTLINE, ["s.toml:3: [site] 'units'", "unknown units"]),
-    (SITE_HEAD + OUTLINE + '[asset]\nname = "a"\nwkt = "POINT (1 1)"\n', ["s.toml:6", "[[asset]]", "single [asset] table"]),
+    (SITE_HEAD + OUTLINE + '[asset]\nname = "a"\nwkt = "POINT (1 '
+                           '1)"\n', ["s.toml:6", "[[asset]]", "single [asset] table"]),
     ('asset = "foo"\n' + SITE_HEAD + OUTLINE, ["s.toml:1", "'asset' must be [[asset]]"]),
     ('zone = "x"\n' + SITE_HEAD + OUTLINE, ["s.toml:1", "'zone' must be [[zone]]"]),
     ("asset = 5\n" + SITE_HEAD + OUTLINE, ["s.toml:1", "'asset' must be [[asset]]"]),
     ("control_point = 5\n" + SITE_HEAD + OUTLINE, ["s.toml:1", "'control_point' must be [[control_point]]"]),
-    (SITE_HEAD + OUTLINE + CONTROL_POINTS.format(x0="0.0", lon0="nan"), ["s.toml:9: [[control_point]] #1 'lon'", "finite"]),
-    (SITE_HEAD + OUTLINE + '[[asset]]\nname = "a"\nwkt = "POINT (1 1)"\nsensitive = nan\n', ["s.toml:9: [[asset]] #1 'sensitive'", "finite"]),
+    (SITE_HEAD + OUTLINE + CONTROL_POINTS.format(x0="0.0", lon0="nan"), ["s.toml:9: [[control_point]] #1 "
+                                                                         "'lon'", "finite"]),
+    (SITE_HEAD + OUTLINE + '[[asset]]\nname = "a"\nwkt = "POINT (1 1)"\nsensitive = '
+                           'nan\n', ["s.toml:9: [[asset]] #1 'sensitive'", "finite"]),
     (SITE_HEAD + "origin = inf\n" + OUTLINE, ["s.toml:4: [site] 'origin'", "finite"]),
-    (SITE_HEAD + OUTLINE + '[[asset]]\nname = "a"\nwkt = "POINT (inf 1)"\n', ["s.toml:8: [[asset]] #1 'wkt'", "finite"]),
-    (SITE_HEAD + OUTLINE.replace("POLYGON ((0 0, 10 0, 10 6, 0 6, 0 0))", "POLYGON Z ((0 0 0, 10 0 0, 10 6 0, 0 6 0, 0 0 0))"),
+    (SITE_HEAD + OUTLINE + '[[asset]]\nname = "a"\nwkt = "POINT (inf '
+                           '1)"\n', ["s.toml:8: [[asset]] #1 'wkt'", "finite"]),
+    (SITE_HEAD + OUTLINE.replace("POLYGON ((0 0, 10 0, 10 6, 0 6, 0 "
+                                 "0))", "POLYGON Z ((0 0 0, 10 0 0, 10 6 0, 0 6 0, 0 0 0))"),
      ["s.toml:5: [outline] 'wkt'", "Z coordinates"]),
     (SITE_HEAD + 'crs = 5\n' + OUTLINE, ["s.toml:4: [site] 'crs'", "must be text"]),
 ]

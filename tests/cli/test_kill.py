@@ -106,7 +106,8 @@ def outcome(name: str, data: bytes | None, ref: Path) -> str:
         if data == (ref / "old.pdf").read_bytes():
             return "old"
         pages = pdf_pages(data)
-        return "new" if pages is not None and pages == pdf_pages((ref / "new_report" / "out.pdf").read_bytes()) else "part"
+        new_pages = pdf_pages((ref / "new_report" / "out.pdf").read_bytes())
+        return "new" if pages is not None and pages == new_pages else "part"
     new = (ref / "new_export" / "out.csv").read_bytes()
     return {(ref / "old.csv").read_bytes(): "old", new: "new"}.get(data, "part")
 

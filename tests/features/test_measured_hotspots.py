@@ -36,7 +36,8 @@ def _readings(spikes: dict[int, float]):
     v = field_z([PointCharge(15, 10, 3.0, 2e-8)], xy[:, 0], xy[:, 1], 1.0)
     for k, value in spikes.items():
         v[k] = value
-    rows = [CorrectedReading(Reading(i + 1, x, y, e, e, "V/m", T0), e) for i, ((x, y), e) in enumerate(zip(xy, v, strict=True))]
+    rows = [CorrectedReading(Reading(i + 1, x, y, e, e, "V/m", T0), e)
+            for i, ((x, y), e) in enumerate(zip(xy, v, strict=True))]
     return xy, v, rows
 
 
@@ -82,7 +83,8 @@ def test_reading_inside_a_mapped_hotspot_adds_none():
     xs, ys = np.meshgrid(np.arange(1.25, 30, 2.5), np.arange(1.25, 20, 2.5))
     xy = np.column_stack([xs.ravel(), ys.ravel()])
     v = field_z([PointCharge(15, 10, 2.0, 6e-6)], xy[:, 0], xy[:, 1], 1.0)  # about -9.6 kV/m nearby
-    rows = [CorrectedReading(Reading(i + 1, x, y, e, e, "V/m", T0), e) for i, ((x, y), e) in enumerate(zip(xy, v, strict=True))]
+    rows = [CorrectedReading(Reading(i + 1, x, y, e, e, "V/m", T0), e)
+            for i, ((x, y), e) in enumerate(zip(xy, v, strict=True))]
     g = build_field(xy, v, BOX, method="kriging", cell_m=0.4)
     hs = find_hotspots(g, Site("box", BOX), LEVEL, rows)
     assert all(h.status != "measured" for h in hs) and hs
@@ -116,7 +118,8 @@ def test_measured_hotspot_in_hotspots_json_and_the_geopackage(tmp_path, capsys):
     create_survey(path, site, spacing_m=2.5).close()
     xy, v, _ = _readings({37: 1.3 * LEVEL})
     with Survey.open(path, write=True) as s:
-        s.add_readings([NewReading(float(x), float(y), float(e), "V/m", float(e)) for (x, y), e in zip(xy, v, strict=True)])
+        s.add_readings([NewReading(float(x), float(y), float(e), "V/m", float(e))
+                        for (x, y), e in zip(xy, v, strict=True)])
     assert main(["grid", str(path), "--method", "kriging", "--variogram", "exponential", "--sill", "1e4",
                  "--range", "6", "--nugget", "4e6", "--cell", "0.4"]) == 0
     capsys.readouterr()
@@ -183,7 +186,8 @@ def test_reading_beside_a_mapped_hotspot_joins_it():
              and cells[i].intersection(m.geometry).area > 0)
     v = v.copy()
     v[k] = -1.5 * LEVEL
-    rows = [CorrectedReading(Reading(i + 1, x, y, e, e, "V/m", T0), e) for i, ((x, y), e) in enumerate(zip(xy, v, strict=True))]
+    rows = [CorrectedReading(Reading(i + 1, x, y, e, e, "V/m", T0), e)
+            for i, ((x, y), e) in enumerate(zip(xy, v, strict=True))]
     hs = find_hotspots(g, site, LEVEL, rows)
     neg = [h for h in hs if h.polarity == "negative"]
     assert len(neg) == 1 and neg[0].status == "confirmed" and k + 1 in neg[0].reading_ids

@@ -170,7 +170,8 @@ def test_sample_sites_load():
 
 
 def test_quoted_boolean_refused():
-    text = ISSUE_EXAMPLE.replace('wkt = "LINESTRING (8 8, 34 8)"', 'wkt = "LINESTRING (8 8, 34 8)"\nsensitive = "false"')
+    text = ISSUE_EXAMPLE.replace('wkt = "LINESTRING (8 8, 34 '
+                                 '8)"', 'wkt = "LINESTRING (8 8, 34 8)"\nsensitive = "false"')
     with pytest.raises(MapperError, match=r"'sensitive' must be true or false"):
         site_from_toml_text(text, source="s.toml")
 
@@ -246,12 +247,14 @@ def test_timezone_must_be_an_iana_name(tmp_path, value, message):
     from mapper.site.site_file import load_site
 
     path = tmp_path / "tz.toml"
-    path.write_text(f'[site]\nname = "Tz"\ntimezone = {value}\n[outline]\nwkt = "POLYGON ((0 0, 9 0, 9 9, 0 9, 0 0))"\n',
+    path.write_text(f'[site]\nname = "Tz"\ntimezone = {value}\n[outline]\nwkt = "POLYGON ((0 0, 9 0, 9 9, 0 9, 0 '
+                    '0))"\n',
                     encoding="utf-8")
     with pytest.raises(MapperError, match=message) as err:
         load_site(path)
     assert "tz.toml:3" in str(err.value.where)
     ok = tmp_path / "ok.toml"
-    ok.write_text('[site]\nname = "Tz"\ntimezone = "Europe/Berlin"\n[outline]\nwkt = "POLYGON ((0 0, 9 0, 9 9, 0 9, 0 0))"\n',
+    ok.write_text('[site]\nname = "Tz"\ntimezone = "Europe/Berlin"\n[outline]\nwkt = "POLYGON ((0 0, 9 0, 9 9, 0 9, 0 '
+                  '0))"\n',
                   encoding="utf-8")
     assert load_site(ok).timezone == "Europe/Berlin"
