@@ -70,19 +70,11 @@ def run(args) -> int:
     if args.layer is not None and not vector:
         raise MapperError("--layer goes with a GeoPackage (or another GIS file) of readings", where=args.file)
     with Survey.open(args.survey, write=True) as survey:
+        common = {"unit": args.unit or None, "sign_convention": survey.sign_convention,
+                  "plan_labels": [p.label for p in survey.plan.points], "meters": list(survey.meters()),
+                  "skip_bad": args.skip_bad, "tz": tz, "crs": args.crs}
         if vector:
-            parsed = parse_readings_vector(
-                args.file,
-                survey.site,
-                layer=args.layer,
-                crs=args.crs,
-                unit=args.unit or None,
-                sign_convention=survey.sign_convention,
-                plan_labels=[p.label for p in survey.plan.points],
-                meters=list(survey.meters()),
-                skip_bad=args.skip_bad,
-                tz=tz,
-            )
+            parsed = parse_readings_vector(args.file, survey.site, layer=args.layer, **common)
         elif is_conditions_csv(args.file):
             if args.crs:
                 raise MapperError("--crs goes with positions; a conditions file has none", where=args.file)
@@ -91,17 +83,7 @@ def run(args) -> int:
             say(f"imported {plural(len(notes), 'condition note')} into {survey.path}")
             return 0
         else:
-            parsed = parse_readings_csv(
-                args.file,
-                survey.site,
-                unit=args.unit or None,
-                sign_convention=survey.sign_convention,
-                plan_labels=[p.label for p in survey.plan.points],
-                meters=list(survey.meters()),
-                skip_bad=args.skip_bad,
-                tz=tz,
-                crs=args.crs,
-            )
+            parsed = parse_readings_csv(args.file, survey.site, **common)
         delay = float(os.environ.get("MAPPER_TEST_IMPORT_DELAY", "0") or 0)
         if delay:  # test hook: slow the open transaction down so a test can kill the process in it
             survey.conn.set_progress_handler(lambda: _slow_down(survey, delay), 1000)

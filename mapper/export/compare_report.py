@@ -17,7 +17,6 @@ from matplotlib.backends.backend_pdf import PdfPages
 from matplotlib.cm import ScalarMappable
 from matplotlib.colors import BoundaryNorm, ListedColormap
 from matplotlib.figure import Figure
-from matplotlib.patches import FancyBboxPatch
 
 from mapper import __version__
 from mapper.atomic_file import atomic_path, output_path
@@ -26,12 +25,12 @@ from mapper.export.report import (
     PAGE_SIZE_IN,
     RC,
     TextColumn,
+    draw_cautions,
     draw_lines,
     draw_site,
     frame_axes,
 )
 from mapper.features import colour_scale as cs
-from mapper.features.cautions import CAUTIONS
 from mapper.features.compare import Comparison
 from mapper.survey.store import to_utc_text, utc_now
 from mapper.units import format_field, from_si, plain_number
@@ -206,16 +205,7 @@ def draw_comparison_page(fig: Figure, cmp: Comparison, before: Products, after: 
     for line in summary_lines(cmp, unit):
         col.para(line, 7.2)
 
-    left_c, top, width_c = 0.62, 0.35, 0.34
-    cc = TextColumn(fig, left_c + 0.012, top, width_c - 0.024)
-    cc.heading("Cautions")
-    for text in CAUTIONS:
-        cc.para("• " + text, 6.8)
-        cc.gap(1.5)
-    bottom = cc.y - 0.01
-    fig.patches.append(FancyBboxPatch((left_c, bottom), width_c, top + 0.012 - bottom, boxstyle="round,pad=0.006",
-                                      transform=fig.transFigure, facecolor="#fff6d6", edgecolor="#b58900",
-                                      linewidth=1.0, zorder=-1))
+    draw_cautions(fig, 0.62, 0.35, 0.34, size=6.8, gap=1.5)
 
 
 def write_comparison_report(cmp: Comparison, before: Products, after: Products, pdf_path: str | Path, *,

@@ -281,6 +281,20 @@ def _title(fig: Figure, products: Products, heading: str) -> None:
              f"CRS {p.crs.name}  ·  {Path(p.source).name}", fontsize=6.5, color="#555555")
 
 
+def draw_cautions(fig: Figure, left: float, top: float, width: float, *, size: float = 7.4,
+                  gap: float = 2.0) -> None:
+    """The cautions in a pale yellow box sized to its text (figure coordinates, top-left anchored)."""
+    cc = TextColumn(fig, left + 0.012, top, width - 0.024)
+    cc.heading("Cautions")
+    for text in CAUTIONS:
+        cc.para("• " + text, size)
+        cc.gap(gap)
+    bottom = cc.y - 0.01
+    fig.patches.append(FancyBboxPatch((left, bottom), width, top + 0.012 - bottom, boxstyle="round,pad=0.006",
+                                      transform=fig.transFigure, facecolor="#fff6d6", edgecolor="#b58900",
+                                      linewidth=1.0, zorder=-1))
+
+
 def draw_site(ax, site: Site, *, labels: bool = True) -> None:
     """Zones, assets (polygons, lines and points, labelled) and the outline on a map axes."""
     for zone in site.zones:
@@ -615,16 +629,7 @@ def draw_findings_page(fig: Figure, products: Products) -> None:
              va="top", color="#444444", wrap=True)
 
     # Bottom right: the cautions box, sized to its text.
-    left, top, width = 0.60, 0.30, 0.36
-    cc = TextColumn(fig, left + 0.012, top, width - 0.024)
-    cc.heading("Cautions")
-    for text in CAUTIONS:
-        cc.para("• " + text, 7.4)
-        cc.gap(2)
-    bottom = cc.y - 0.01
-    fig.patches.append(FancyBboxPatch((left, bottom), width, top + 0.012 - bottom, boxstyle="round,pad=0.006",
-                                      transform=fig.transFigure, facecolor="#fff6d6", edgecolor="#b58900",
-                                      linewidth=1.0, zorder=-1))
+    draw_cautions(fig, 0.60, 0.30, 0.36)
 
 
 def _charge_text(q: float) -> str:

@@ -5,6 +5,7 @@ from __future__ import annotations
 from pathlib import Path
 
 from mapper.cli.main import main
+from tests.conftest import BOX_SITE
 
 ROOT = Path(__file__).resolve().parents[2]
 SAMPLES = ROOT / "sample_sites"
@@ -28,21 +29,7 @@ def hall_survey(folder: Path, name: str = "north_hall", spacing: str = "2") -> P
 
 #: Two small local sites (site metres, no georeference) for the many-survey tests.
 SMALL_SITES = {
-    "Box": """
-[site]
-name = "Box"
-units = "m"
-[outline]
-wkt = "POLYGON ((0 0, 10 0, 10 6, 0 6, 0 0))"
-[[asset]]
-name = "bench"
-kind = "workstation"
-wkt = "POLYGON ((6 4, 8 4, 8 5, 6 5, 6 4))"
-[[zone]]
-name = "EPA"
-wkt = "POLYGON ((5 3, 9 3, 9 6, 5 6, 5 3))"
-limit = "125 V/in"
-""",
+    "Box": BOX_SITE,
     "Bay": """
 [site]
 name = "Bay"
