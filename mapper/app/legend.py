@@ -62,9 +62,10 @@ def legend_text(layer: str, scale_v_per_m: float, unit: str, threshold_v_per_m: 
         k = cs.ACTION_BAND
         marks[2 * (n - k)] = "▲"
         marks[2 * (n + k)] = "▲"
-        text.append("".join(marks) + " action level\n")
-        multiples = ", ".join(f"{m:g}" for m in cs.EDGE_MULTIPLES)
-        text.append(f"edges ±{multiples} × {format_field(threshold_v_per_m, unit, 4)}\n")
+        text.append("".join(marks) + "\n")
+        text.append(f"▲ action level ±{format_field(threshold_v_per_m, unit, 4)}\n")
+        multiples = " ".join(f"{m:g}" for m in cs.EDGE_MULTIPLES)
+        text.append(f"steps at ±{multiples} ×\n")
     _swatch(text, FEATURE_COLOURS["current"], "here  ")
     _swatch(text, FEATURE_COLOURS["unvisited"], "to do  ")
     _swatch(text, FEATURE_COLOURS["suggested"], "suggested\n")

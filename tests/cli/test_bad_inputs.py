@@ -16,8 +16,8 @@ from pathlib import Path
 import pytest
 
 from mapper.cli.main import main
+from tests.cli.test_main_job import digest
 from tests.conftest import SAMPLES
-from tests.foundation.test_cli import digest
 
 # A few readings spread over the 10 m x 6 m box site, enough to build a field model.
 READINGS = "x,y,value,unit\n" + "".join(

@@ -21,8 +21,8 @@ import pytest
 from mapper.cli.main import main
 from mapper.survey.store import Survey
 from tests.cli.test_bad_inputs import assert_one_line, run
+from tests.cli.test_main_job import digest
 from tests.conftest import ROOT, SAMPLES
-from tests.foundation.test_cli import digest
 
 OUTLINE = '[outline]\nwkt = "POLYGON ((0 0, 10 0, 10 6, 0 6, 0 0))"\n'
 SITE_HEAD = '[site]\nname = "Box"\nunits = "m"\n'

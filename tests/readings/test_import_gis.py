@@ -20,8 +20,8 @@ from shapely.geometry import LineString, Point
 
 from mapper.cli.main import main
 from mapper.survey.store import Survey
+from tests.cli.test_main_job import digest
 from tests.conftest import SAMPLES
-from tests.foundation.test_cli import digest
 
 HALL, HALL_CSV = SAMPLES / "north_hall.toml", SAMPLES / "north_hall_readings.csv"
 YARD, YARD_CSV = SAMPLES / "east_yard.geojson", SAMPLES / "east_yard_readings.csv"

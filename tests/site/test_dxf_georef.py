@@ -18,8 +18,8 @@ from shapely.geometry import Polygon
 
 from mapper.cli.main import main
 from mapper.survey.store import Survey
-from tests.foundation.test_cli import digest
-from tests.foundation.test_import_gis import one_line_error, run
+from tests.cli.test_main_job import digest
+from tests.readings.test_import_gis import one_line_error, run
 
 #: A corner near the outdoor sample (UTM zone 33N, EPSG:32633), metres.
 E0, N0 = 411_234.6, 5_655_321.8
