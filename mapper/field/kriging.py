@@ -148,7 +148,7 @@ class _Kriging:
         self.chol_ = None
         if vg.bounded:
             # C = U'U; everything after this is triangular solves with U' (no bordered system).
-            up = cholesky_upper(_cov_inplace(vg, _pairwise(xt), with_nugget=True))
+            up = cholesky_upper(vg.covariance_into(_pairwise(xt), with_nugget=True))
             if up is not None:
                 u = lower_solve_inplace(up, np.asfortranarray(f))
                 v = lower_solve_inplace(up, z.copy())
@@ -232,7 +232,7 @@ class _Kriging:
         vg = self.variogram_
         if self.nugget_as_error:
             return vg.nugget + vg.structured(h)
-        return _gamma_inplace(vg, h)
+        return vg.semivariance_into(h)
 
     def _predict_global(self, tt: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
         if self.chol_ is not None:
@@ -277,7 +277,7 @@ class _Kriging:
             h = buf[: e - s]
             cdist(tt[s:e], xt, out=h)
             hit = on_data[(on_data >= s) & (on_data < e)]
-            kt = _cov_inplace(vg, h, with_nugget=with_nugget, zero=(hit - s, near[hit]))
+            kt = vg.covariance_into(h, with_nugget=with_nugget, zero=(hit - s, near[hit]))
             y = lower_solve_inplace(self.chol_, kt.T)  # (n, c) Fortran: columns U'^-1 k
             # r'y and F'C^-1 k for the block in one product (scipy's BLAS, like the solve).
             proj = blas.dgemm(1.0, y, ru, trans_a=1)  # (c, 1 + p)
@@ -299,7 +299,7 @@ class _Kriging:
             scale = np.maximum(np.max(np.abs(pts - centre[:, None, :]), axis=(1, 2)), 1e-12)[:, None, None]
         f = self._drift(pts, centre[:, None, :], scale)
         a = np.zeros((idx.shape[0], k + p, k + p))
-        a[:, :k, :k] = _gamma_inplace(self.variogram_, d)
+        a[:, :k, :k] = self.variogram_.semivariance_into(d)
         a[:, :k, k:] = f
         a[:, k:, :k] = np.swapaxes(f, 1, 2)
         return a, pts, scale
@@ -394,51 +394,6 @@ def _pairwise(xt: np.ndarray) -> np.ndarray:
     return out
 
 
-def _gamma_inplace(vg: Variogram, h: np.ndarray) -> np.ndarray:
-    """gamma(h) computed in the memory of ``h`` (which is overwritten), for the hot loops."""
-    if vg.model not in ("exponential", "gaussian"):
-        return vg(h)
-    zero = h <= 0 if vg.nugget else None
-    if vg.model == "gaussian":
-        h *= h
-        h *= -3.0 / (vg.range * vg.range)
-    else:
-        h *= -3.0 / vg.range
-    np.exp(h, out=h)
-    h *= -vg.sill
-    h += vg.sill + vg.nugget
-    if zero is not None:
-        np.copyto(h, 0.0, where=zero)
-    return h
-
-
-def _cov_inplace(
-    vg: Variogram, h: np.ndarray, *, with_nugget: bool, zero: tuple[np.ndarray, np.ndarray] | None = None
-) -> np.ndarray:
-    """Covariance at lags ``h`` computed in the memory of ``h`` (overwritten); nugget at h = 0.
-
-    ``zero`` optionally lists the (row, column) indices where ``h`` is 0 (found beforehand),
-    which saves a pass over ``h`` looking for them.
-    """
-    nugget = with_nugget and vg.nugget > 0
-    if nugget and zero is None:
-        zero = np.nonzero(h <= 0)
-    if vg.model in ("exponential", "gaussian") and vg.sill > 0:
-        # sill * exp(x) as exp(x + ln sill): one pass fewer over the block.
-        if vg.model == "gaussian":
-            h *= h
-            h *= -3.0 / (vg.range * vg.range)
-        else:
-            h *= -3.0 / vg.range
-        h += np.log(vg.sill)
-        np.exp(h, out=h)
-    else:
-        h = vg.sill * vg.correlation(h)
-    if nugget:
-        h[zero] += vg.nugget
-    return h
-
-
 def _within(pts: np.ndarray) -> np.ndarray:
     """Distances (B, k, k) within each neighbourhood of positions ``pts`` (B, k, 2)."""
     px, py = np.ascontiguousarray(pts[..., 0]), np.ascontiguousarray(pts[..., 1])
@@ -479,7 +434,7 @@ def _loo_global(kr: _Kriging) -> tuple[np.ndarray, np.ndarray]:
     if vg.bounded:
         up = getattr(kr, "chol_", None)  # the factor of the fit, when it was a global solve
         if up is None:
-            up = cholesky_upper(_cov_inplace(vg, _pairwise(xt), with_nugget=True))
+            up = cholesky_upper(vg.covariance_into(_pairwise(xt), with_nugget=True))
         v = None if up is None else chol_inverse_rows(up)
         if v is not None:
             # B = C^-1 - C^-1 F (F' C^-1 F)^-1 F' C^-1; error_i = (B z)_i / B_ii, var_i = 1 / B_ii.

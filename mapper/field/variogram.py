@@ -155,17 +155,27 @@ class Variogram:
         return cdist(self.transform(a), self.transform(b))
 
     # ----------------------------------------------------------------------------- values
+    def _exponent_into(self, h: np.ndarray) -> np.ndarray:
+        """The exponent of the exponential or gaussian correlation, in the memory of ``h``.
+
+        ``-3 h / range`` or ``-3 (h / range)^2`` (practical range: correlation 0.05 at ``range``).
+        """
+        if self.model == "gaussian":
+            h *= h
+            h *= -3.0 / (self.range * self.range)
+        else:
+            h *= -3.0 / self.range
+        return h
+
     def correlation(self, h: np.ndarray) -> np.ndarray:
         """Correlation of the structured part at anisotropic lag ``h`` (metres); bounded only."""
         h = np.asarray(h, dtype=float)
+        if self.model in ("exponential", "gaussian"):
+            return np.exp(self._exponent_into(h.copy()))
         r = h / self.range
         if self.model == "spherical":
             rc = np.minimum(r, 1.0)
             return 1.0 - rc * (1.5 - 0.5 * rc * rc)
-        if self.model == "exponential":
-            return np.exp(-3.0 * r)
-        if self.model == "gaussian":
-            return np.exp(-3.0 * r * r)
         if self.model == "matern":
             return _matern_corr_unit(r * matern_practical_factor(self.nu), self.nu)
         raise MapperError("the linear model has no correlation function", where=_WHERE)
@@ -184,6 +194,40 @@ class Variogram:
         if self.nugget:  # structured(0) is 0 for every model, so only the nugget needs masking
             g = np.where(h > 0, g + self.nugget, 0.0)
         return g
+
+    def semivariance_into(self, h: np.ndarray) -> np.ndarray:
+        """gamma(h) computed in the memory of ``h`` (which is overwritten), for the hot loops."""
+        if self.model not in ("exponential", "gaussian"):
+            return self(h)
+        zero = h <= 0 if self.nugget else None
+        np.exp(self._exponent_into(h), out=h)
+        h *= -self.sill
+        h += self.sill + self.nugget
+        if zero is not None:
+            np.copyto(h, 0.0, where=zero)
+        return h
+
+    def covariance_into(
+        self, h: np.ndarray, *, with_nugget: bool, zero: tuple[np.ndarray, np.ndarray] | None = None
+    ) -> np.ndarray:
+        """Covariance at lags ``h`` computed in the memory of ``h`` (overwritten); nugget at h = 0.
+
+        ``zero`` optionally lists the (row, column) indices where ``h`` is 0 (found beforehand),
+        which saves a pass over ``h`` looking for them.
+        """
+        nugget = with_nugget and self.nugget > 0
+        if nugget and zero is None:
+            zero = np.nonzero(h <= 0)
+        if self.model in ("exponential", "gaussian") and self.sill > 0:
+            # sill * exp(x) as exp(x + ln sill): one pass fewer over the block.
+            self._exponent_into(h)
+            h += np.log(self.sill)
+            np.exp(h, out=h)
+        else:
+            h = self.sill * self.correlation(h)
+        if nugget:
+            h[zero] += self.nugget
+        return h
 
     def covariance(self, h: np.ndarray) -> np.ndarray:
         """Covariance C(h) = total sill - gamma(h), (V/m)^2; bounded models only."""
