@@ -53,7 +53,7 @@ def hotspot_cells(h, unit: str, *, digits: int = 4) -> dict[str, str]:
         "area": f"{h.area_m2:.1f}",
         "peak": field(h.peak_v_per_m),
         "peak_at": f"{h.peak_x:.1f}, {h.peak_y:.1f}",
-        "mean": field(getattr(h, "mean_v_per_m", None)),
+        "mean": field(h.mean_v_per_m),
         "max_reading": field(h.max_reading_v_per_m),
         "p_max": "-" if h.p_exceed_max is None else f"{h.p_exceed_max:.2f}",
         "readings": str(len(h.reading_ids)),

@@ -272,8 +272,8 @@ class _FieldModel:
 
 
 def _field_model(
-    survey: Survey, xy, values, outline, method: str | None, cell_m: float | None, use_stored: bool,
-    heights_m=None, height_m: float | None = None,
+    survey: Survey, readings: Sequence[CorrectedReading], method: str | None, cell_m: float | None,
+    use_stored: bool, height_m: float | None = None,
 ) -> _FieldModel:
     """The survey's stored field model when it is current, else one interpolated now.
 
@@ -303,8 +303,7 @@ def _field_model(
             "(run 'mapper grid' to store a new one)",
         ))
     try:
-        grid = build_field(xy, values, outline, method=build_method, cell_m=cell_m, heights_m=heights_m,
-                           seeds=seeds_from_site(survey.site), height_m=height_m)
+        grid = build_survey_field(survey.site, readings, method=build_method, cell_m=cell_m, height_m=height_m)
     except MapperError as exc:
         if cell_m is not None or height_m is not None:  # the user's own --cell or --height: say so
             raise
@@ -388,8 +387,7 @@ def survey_products(
         model = _FieldModel(reason=too_few_positions(positions))
     else:
         step("field model")
-        model = _field_model(survey, xy, values, site.outline, method, cell_m, use_stored,
-                             field_heights(readings), height_m)
+        model = _field_model(survey, readings, method, cell_m, use_stored, height_m)
     notes.extend(model.remarks)
     grid, reason = model.grid, model.reason
     findings = None

@@ -2,7 +2,7 @@
 
 from __future__ import annotations
 
-from collections.abc import Callable, Sequence
+from collections.abc import Sequence
 
 from textual import on
 from textual.app import ComposeResult
@@ -23,8 +23,6 @@ class HotspotScreen(Screen[tuple[float, float] | None]):
     ----------
     hotspots : sequence
         Hotspot records from the live refit.
-    fmt : callable
-        Formats a V/m value for display.
     threshold_label : str
         The threshold in the display unit.
     engine : str
@@ -36,11 +34,9 @@ class HotspotScreen(Screen[tuple[float, float] | None]):
     CSS_PATH = "hotspot_screen.tcss"
     BINDINGS = [Binding("escape,f10", "close", "Back to the map")]
 
-    def __init__(self, hotspots: Sequence, fmt: Callable[[float], str], threshold_label: str, engine: str,
-                 unit: str) -> None:
+    def __init__(self, hotspots: Sequence, threshold_label: str, engine: str, unit: str) -> None:
         super().__init__()
         self.hotspots = tuple(hotspots)
-        self.fmt = fmt
         self.threshold_label = threshold_label
         self.engine = engine
         self.unit = unit

@@ -269,7 +269,7 @@ class MainScreen(Screen):
         grid = self.live.grid if self.live else None
         layer = self.map_layer if grid is not None else "readings"
         scale = self.scale()
-        markers = self._markers(layer, scale, sign)
+        markers = self._markers(layer, sign)
         suggested = [(g.x, g.y) for g in self.live.suggestions] if self.live else []
         reach_xy = None
         if grid is not None and getattr(self, "_reach_for", None) is not grid:
@@ -287,7 +287,7 @@ class MainScreen(Screen):
         self._show("#legend", Text(title + "\n", style="bold")
                    + legend_text(layer, scale, s.display_unit, s.threshold_v_per_m))
 
-    def _markers(self, layer: str, scale: float, sign: float) -> Markers:
+    def _markers(self, layer: str, sign: float) -> Markers:
         """Planned points (to do / done) and free-position readings as map markers."""
         s = self.session
         means = s.point_means()
@@ -723,7 +723,7 @@ class MainScreen(Screen):
 
         self.app.push_screen(
             HotspotScreen(
-                hotspots, s.fmt, format_field(s.threshold_v_per_m, s.display_unit, 3),
+                hotspots, format_field(s.threshold_v_per_m, s.display_unit, 3),
                 live.engine if live else "no map yet", s.display_unit,
             ),
             done,

@@ -29,6 +29,7 @@ from mapper.export.report import (
     draw_lines,
     draw_site,
     frame_axes,
+    method_text,
 )
 from mapper.features import colour_scale as cs
 from mapper.features.compare import Comparison
@@ -133,10 +134,6 @@ def summary_lines(cmp: Comparison, unit: str) -> list[str]:
     ]
 
 
-def _method(p: Products) -> str:
-    return f"{p.grid.method}, cell {p.grid.cell_m:g} m" if p.grid is not None else "no field model"
-
-
 def draw_comparison_page(fig: Figure, cmp: Comparison, before: Products, after: Products) -> None:
     """The comparison page: three maps on one scale, the changes, the summary and the cautions."""
     unit = before.display_unit
@@ -151,8 +148,8 @@ def draw_comparison_page(fig: Figure, cmp: Comparison, before: Products, after: 
     fig.text(0.04, 0.928, f"Before: {when(before)}, {plural(len(before.readings), 'reading')}  ·  after: "
                           f"{when(after)}, "
              f"{plural(len(after.readings), 'reading')}", fontsize=9, va="top", color="#333333")
-    fig.text(0.04, 0.905, f"Action level {format_field(t, unit)}  ·  before: {_method(before)}  ·  after: "
-             f"{_method(after)}", fontsize=9, va="top", color="#333333")
+    fig.text(0.04, 0.905, f"Action level {format_field(t, unit)}  ·  before: {method_text(before)}  ·  after: "
+             f"{method_text(after)}", fontsize=9, va="top", color="#333333")
     fig.text(0.04, 0.018, f"mapper {__version__}  ·  {to_utc_text(utc_now())[:16].replace('T', ' ')} UTC  ·  "
              f"{Path(before.source).name} → {Path(after.source).name}", fontsize=6.5, color="#555555")
 

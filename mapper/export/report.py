@@ -268,12 +268,17 @@ class TextColumn:
 
 
 # ------------------------------------------------------------------------------------- pages
+def method_text(p: Products) -> str:
+    """The field model in a few words: ``"physics, cell 1 m"``, or ``"no field model"``."""
+    return f"{p.grid.method}, cell {p.grid.cell_m:g} m" if p.grid is not None else "no field model"
+
+
 def _title(fig: Figure, products: Products, heading: str) -> None:
     p = products
     fig.text(0.04, 0.965, f"{p.name}: {heading}", fontsize=15, fontweight="bold", va="top")
     span = p.time_span()
     when = local_span(span, p.site.timezone) if span else "no readings"
-    method = (f"{p.grid.method}, cell {p.grid.cell_m:g} m" if p.grid is not None else "no field model")
+    method = method_text(p)
     fig.text(0.04, 0.925, f"Survey {when}  ·  {plural(len(p.readings), 'reading')}  ·  action level "
              f"{format_field(p.threshold_v_per_m, p.display_unit)}  ·  {method}"
              + (f"  ·  operator {p.operator}" if p.operator else ""), fontsize=9, va="top", color="#333333")

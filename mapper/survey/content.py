@@ -16,6 +16,7 @@ import sqlite3
 from dataclasses import dataclass
 from pathlib import Path
 
+from mapper.atomic_file import output_path
 from mapper.errors import MapperError
 from mapper.survey.lock import WriterLock
 from mapper.survey.schema import APPLICATION_ID, migrate
@@ -130,8 +131,7 @@ def write_content(path: str | Path, content: SurveyContent) -> Path:
     path = Path(path)
     if path.exists():
         raise MapperError("survey file already exists; choose another name", where=str(path))
-    if not path.parent.exists():
-        raise MapperError("folder does not exist", where=str(path.parent))
+    output_path(path)  # its folder must exist
     # built under a temporary name beside it and linked into place when complete, so a pull
     # that is killed never leaves a half-written survey under the name asked for
     temp = path.with_name(f".{path.name}.{os.getpid()}.partial")

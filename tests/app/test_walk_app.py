@@ -230,10 +230,10 @@ async def test_map_colours_do_not_rescale_as_readings_arrive(box_survey: Path):
         main = _main(app)
         t = app.session.threshold_v_per_m
         await _enter(pilot, "100")                     # A1
-        first = tuple(int(c) for c in main._markers("readings", main.scale(), 1.0).rgb[0])
+        first = tuple(int(c) for c in main._markers("readings", 1.0).rgb[0])
         await _enter(pilot, "90000")                   # A2, eighteen times the 125 V/in level
         await settle(app)
-        again = tuple(int(c) for c in main._markers("readings", main.scale(), 1.0).rgb[0])
+        again = tuple(int(c) for c in main._markers("readings", 1.0).rgb[0])
         assert first == again
         c = colour_hex(100.0, t).lstrip("#")
         assert first == (int(c[0:2], 16), int(c[2:4], 16), int(c[4:6], 16))

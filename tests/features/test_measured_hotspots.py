@@ -152,7 +152,7 @@ async def test_hotspot_screen_says_which_map_it_shows():
 
     class _Host(App):
         def on_mount(self) -> None:
-            self.push_screen(HotspotScreen((), lambda v: f"{v:.0f} V/m", "4921 V/m", "fast ordinary kriging", "V/m"))
+            self.push_screen(HotspotScreen((), "4921 V/m", "fast ordinary kriging", "V/m"))
 
     app = _Host()
     async with app.run_test(size=(120, 30)) as pilot:
