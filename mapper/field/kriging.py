@@ -35,6 +35,7 @@ from mapper.field.linalg import (
     lower_solve_inplace,
     solve_batched,
 )
+from mapper.field.neighbourhood import map_nearest_sets
 from mapper.field.repeats import MERGE_TOL_M, MergedReadings, merge_repeats
 from mapper.field.variogram import Variogram
 
@@ -42,6 +43,8 @@ from mapper.field.variogram import Variogram
 DRIFTS = ("linear",)
 _CHUNK_ELEMENTS = 2**22  # doubles per n x chunk block in the global solve (32 MB)
 _LOCAL_BATCH = 2048  # targets (or squares) per batch in the moving neighbourhood
+_SET_BATCH_ELEMENTS = 2**17  # doubles per batch of bordered set matrices (1 MB, to stay in cache)
+_HUGE = 1e200  # trailing diagonal of the bordered factorisation (never enters the used block)
 
 
 class _Kriging:
@@ -189,7 +192,7 @@ class _Kriging:
         elif self.share_m is not None:
             est, var = self._predict_shared(t, tt)
         else:
-            est, var = self._predict_local(tt)
+            est, var = self._predict_sets(tt)
         return est, np.sqrt(np.maximum(var, 0.0))
 
     def weights(self, targets) -> np.ndarray:
@@ -319,6 +322,107 @@ class _Kriging:
             var[sl] = np.einsum("bk,bk->b", w, rhs) - self._g00()
         return est, var
 
+    def _predict_sets(self, tt: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        """Moving neighbourhood, exact: one factorisation per distinct set of k nearest readings.
+
+        Targets whose k nearest readings are the same set share that set's system (grouped by
+        :func:`mapper.field.neighbourhood.map_nearest_sets`). For a set with covariance
+        ``C = L L'``, drift ``F``, values ``z`` and its targets' covariances ``c_1 .. c_w``, one
+        Cholesky factorisation of the bordered matrix ``[[C, B'], [B, D]]`` with
+        ``B' = [F, z, c_1 .. c_w]`` and a large diagonal ``D`` yields ``L`` and, in its lower-left
+        block, the rows of ``L^-1 B'`` (computed from the first k columns only, so ``D`` never
+        enters them). From ``G = L^-1 F``, ``g = L^-1 z`` and ``y_j = L^-1 c_j`` each target's
+        estimate and variance follow by dot products, as in the global solve.
+        """
+        if not self.variogram_.bounded:
+            return self._predict_local(tt)
+        m = tt.shape[0]
+        est, var = np.empty(m), np.empty(m)
+
+        def consume(block) -> None:
+            width = np.left_shift(1, np.ceil(np.log2(block.count)).astype(np.int64))
+            size0 = self.neighbors + self._n_drift + 1
+            for w in np.unique(width):
+                ids = np.flatnonzero(width == w)
+                step = max(1, _SET_BATCH_ELEMENTS // ((size0 + int(w)) ** 2))
+                for s in range(0, ids.shape[0], step):
+                    self._solve_sets(block, ids[s:s + step], int(w), tt, est, var)
+
+        map_nearest_sets(self.xt_, tt, self.neighbors, consume, self.tree_)
+        return est, var
+
+    def _solve_sets(self, block, ids: np.ndarray, w: int, tt: np.ndarray, est: np.ndarray,
+                    var: np.ndarray) -> None:
+        """Estimate and variance of the targets of sets ``ids`` of ``block`` (each with <= w targets)."""
+        vg, k, p = self.variogram_, self.neighbors, self._n_drift
+        nb = ids.shape[0]
+        members = block.members[ids]  # (nb, k)
+        pts = self.xt_[members]
+        c00 = vg.sill if self.nugget_as_error else vg.total_sill
+        # Each set's targets (rows of the block), padded to w slots by repeating the last one.
+        count = block.count[ids]
+        slot = np.arange(w)
+        valid = slot[None, :] < count[:, None]
+        rows = block.start[ids, None] + np.minimum(slot[None, :], count[:, None] - 1)  # (nb, w)
+        size = k + p + 1 + w
+        a = np.empty((nb, size, size))
+        # Lower triangle only (all the factorisation reads): covariances within the set ...
+        _within_into(pts, a[:, :k, :k])
+        cov = vg.covariance_into(a[:, :k, :k], with_nugget=False)
+        if cov.base is not a:  # models computed out of place
+            a[:, :k, :k] = cov
+        diag = np.arange(k)
+        a[:, diag, diag] = vg.total_sill
+        centre = pts.mean(axis=1)
+        scale = 1.0
+        if p > 1:  # drift columns scaled by the neighbourhood size, for conditioning only
+            scale = np.maximum(np.max(np.abs(pts - centre[:, None, :]), axis=(1, 2)), 1e-12)[:, None, None]
+        # ... then the rows of B: drift, values, and the targets' covariances (nugget at lag 0).
+        a[:, k:k + p, :k] = np.swapaxes(self._drift(pts, centre[:, None, :], scale), 1, 2)
+        a[:, k + p, :k] = self.values_[members]
+        h = block.dist[rows]  # (nb, w, k)
+        on_data = (h == 0.0) if (vg.nugget > 0 and not self.nugget_as_error) else None
+        kt = vg.covariance_into(h, with_nugget=False)
+        if on_data is not None:
+            kt[on_data] += vg.nugget
+        a[:, k + p + 1:, :k] = kt
+        a[:, k:, k:] = 0.0
+        tail = np.arange(k, size)
+        a[:, tail, tail] = _HUGE
+        try:
+            low = np.linalg.cholesky(a)
+        except np.linalg.LinAlgError:  # some set's covariance is not numerically positive definite
+            for i in range(nb):
+                t_i = block.target[rows[i, valid[i]]]
+                est[t_i], var[t_i] = self._bordered_at(members[i], tt[t_i])
+            return
+        g = low[:, k:k + p, :k]  # (nb, p, k): rows of L^-1 F
+        gz = low[:, k + p, :k]  # (nb, k)
+        y = low[:, k + p + 1:, :k]  # (nb, w, k)
+        gt = np.swapaxes(g, 1, 2)
+        gram = np.matmul(g, gt)  # F' C^-1 F, (nb, p, p)
+        beta = np.linalg.solve(gram, np.matmul(g, gz[:, :, None]))  # (nb, p, 1)
+        r = gz - np.matmul(gt, beta)[:, :, 0]
+        tgt = block.target[rows]  # (nb, w)
+        f0 = self._drift(tt[tgt], centre[:, None, :], scale)  # (nb, w, p)
+        e = np.matmul(f0, beta)[:, :, 0] + np.matmul(y, r[:, :, None])[:, :, 0]
+        d = f0 - np.matmul(y, gt)  # (nb, w, p)
+        gi_d = np.linalg.solve(gram, np.swapaxes(d, 1, 2))  # (nb, p, w)
+        v = c00 - np.einsum("bwk,bwk->bw", y, y) + np.einsum("bwp,bpw->bw", d, gi_d)
+        est[tgt[valid]] = e[valid]
+        var[tgt[valid]] = v[valid]
+
+    def _bordered_at(self, members: np.ndarray, tt: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        """Estimate and variance at targets ``tt`` from one neighbourhood, by the bordered solve."""
+        idx = np.broadcast_to(members, (tt.shape[0], members.shape[0]))
+        a, pts, _ = self._local_matrices(idx, tt)
+        h = _to_point(pts, tt)
+        rhs = np.concatenate([self._rhs_gamma(h), self._drift(tt, tt, 1.0)], axis=1)
+        w = solve_batched(a, rhs)
+        k = members.shape[0]
+        return (np.einsum("bk,bk->b", w[:, :k], self.values_[idx]),
+                np.einsum("bk,bk->b", w, rhs) - self._g00())
+
     def _predict_shared(self, t: np.ndarray, tt: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
         k, m, side = self.neighbors, t.shape[0], self.share_m
         origin = t.min(axis=0)
@@ -403,6 +507,17 @@ def _within(pts: np.ndarray) -> np.ndarray:
     dy *= dy
     dx += dy
     return np.sqrt(dx, out=dx)
+
+
+def _within_into(pts: np.ndarray, out: np.ndarray) -> np.ndarray:
+    """Distances (B, k, k) within each neighbourhood of positions ``pts`` (B, k, 2), into ``out``."""
+    px, py = pts[..., 0], pts[..., 1]
+    np.subtract(px[:, :, None], px[:, None, :], out=out)
+    np.multiply(out, out, out=out)
+    dy = py[:, :, None] - py[:, None, :]
+    dy *= dy
+    out += dy
+    return np.sqrt(out, out=out)
 
 
 def _square_lags(pts: np.ndarray, tp: np.ndarray) -> np.ndarray:

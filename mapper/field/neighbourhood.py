@@ -1,0 +1,271 @@
+"""The k nearest readings of many targets, grouped by identical neighbourhood.
+
+A moving-neighbourhood method solves one small system per distinct set of k nearest readings.
+On a dense grid of targets, neighbouring nodes usually share that set (the plane splits into the
+cells of the order-k Voronoi diagram), so grouping targets by their set lets one factorisation
+serve all of them, exactly: each target still uses its own k nearest readings.
+
+How the sets are found: targets are binned into squares; for a square with centre ``c`` whose
+targets lie within ``h`` of ``c``, every k-nearest reading of every target lies within
+``d_k(c) + 2 h`` of ``c`` (triangle inequality, ``d_k(c)`` being the distance from ``c`` to its own
+k-th nearest reading). Those candidates are few (about twice k), so the distances from the
+square's targets to them, the k smallest of each, and the set (a bit mask over the candidates)
+are dense-array work. Identical masks within a square are one set; a set met in two squares is
+kept twice (the same exact result, factored twice).
+
+The work runs block by block (a block is a run of squares) on a few threads, and the caller's
+function consumes each block as soon as it is found, so no array over all targets x k is held.
+All positions are in the method's (anisotropy-transformed) coordinates, metres.
+"""
+
+from __future__ import annotations
+
+import os
+from collections.abc import Callable
+from concurrent.futures import ThreadPoolExecutor
+from dataclasses import dataclass
+from typing import TypeVar
+
+import numpy as np
+from scipy.spatial import cKDTree
+
+_BLOCK_ELEMENTS = 2**21  # padded target x candidate distances per block (16 MB)
+_HASH = np.random.default_rng(20261203).integers(1, 2**63, size=64, dtype=np.uint64) | np.uint64(1)
+T = TypeVar("T")
+
+
+@dataclass(frozen=True)
+class NeighbourSets:
+    """A block of targets grouped by their set of k nearest data.
+
+    Attributes
+    ----------
+    target : ndarray, shape (r,), int64
+        Indices of the block's targets (into the caller's target array), grouped by set: the
+        targets of set ``j`` are ``target[start[j]:start[j + 1]]``.
+    start : ndarray, shape (S + 1,), int64
+        Offsets of each set's targets in ``target``.
+    members : ndarray, shape (S, k), int64
+        Data indices of each set.
+    dist : ndarray, shape (r, k)
+        Distance from each target to the members of its set, in the order of ``members``, metres.
+    """
+
+    target: np.ndarray
+    start: np.ndarray
+    members: np.ndarray
+    dist: np.ndarray
+
+    @property
+    def n_sets(self) -> int:
+        """Number of distinct sets in the block (factorisations needed)."""
+        return int(self.members.shape[0])
+
+    @property
+    def count(self) -> np.ndarray:
+        """Targets of each set, shape (S,)."""
+        return np.diff(self.start)
+
+
+def worker_count() -> int:
+    """Threads for the batched numerics: the usable cores, at most 4."""
+    try:
+        n = len(os.sched_getaffinity(0))
+    except AttributeError:  # pragma: no cover - not Linux
+        n = os.cpu_count() or 1
+    return max(1, min(4, n))
+
+
+def map_nearest_sets(
+    data: np.ndarray,
+    targets: np.ndarray,
+    k: int,
+    consume: Callable[[NeighbourSets], T],
+    tree: cKDTree | None = None,
+    side: float | None = None,
+) -> list[T]:
+    """Group every target by its k nearest data, and hand each block of sets to ``consume``.
+
+    Parameters
+    ----------
+    data : ndarray, shape (n, 2)
+        Data positions, metres (n >= k).
+    targets : ndarray, shape (m, 2)
+        Target positions, metres.
+    k : int
+        Neighbours per target.
+    consume : callable
+        Called once per block with its :class:`NeighbourSets`, from worker threads (blocks hold
+        disjoint targets, so writing results into shared arrays at ``target`` is safe).
+    tree : cKDTree, optional
+        Tree of ``data`` (built when not given).
+    side : float, optional
+        Side of the binning squares, metres (default: a fifth of the typical k-th neighbour
+        distance); it changes only the speed, never the sets.
+
+    Returns
+    -------
+    list
+        What ``consume`` returned, block by block. Ties at the k-th distance are broken
+        arbitrarily (any such choice is a set of k nearest).
+    """
+    data = np.ascontiguousarray(data, dtype=float)
+    targets = np.ascontiguousarray(targets, dtype=float)
+    if targets.shape[0] == 0:
+        return []
+    squares = _Squares.of(data, targets, k, cKDTree(data) if tree is None else tree, side)
+
+    def job(bounds: tuple[int, int]) -> T:
+        return consume(squares.sets(*bounds))
+
+    blocks = squares.blocks()
+    if len(blocks) == 1:
+        return [job(blocks[0])]
+    with ThreadPoolExecutor(max_workers=worker_count()) as pool:
+        return list(pool.map(job, blocks))
+
+
+def nearest_sets(data: np.ndarray, targets: np.ndarray, k: int, tree: cKDTree | None = None,
+                 side: float | None = None) -> NeighbourSets:
+    """All targets' sets of k nearest data in one :class:`NeighbourSets` (see :func:`map_nearest_sets`)."""
+    parts = map_nearest_sets(data, targets, k, lambda b: b, tree, side)
+    if not parts:
+        return NeighbourSets(np.empty(0, np.int64), np.zeros(1, np.int64), np.empty((0, k), np.int64),
+                             np.empty((0, k)))
+    offsets = np.cumsum([0] + [p.target.shape[0] for p in parts[:-1]])
+    return NeighbourSets(
+        np.concatenate([p.target for p in parts]),
+        np.concatenate([[0]] + [p.start[1:] + o for p, o in zip(parts, offsets, strict=True)]),
+        np.concatenate([p.members for p in parts]),
+        np.concatenate([p.dist for p in parts]),
+    )
+
+
+def _typical_kth_distance(data: np.ndarray, k: int) -> float:
+    """Distance to the k-th nearest datum for data spread evenly over their bounding box, metres."""
+    lo, hi = data.min(axis=0), data.max(axis=0)
+    area = float(np.prod(np.maximum(hi - lo, 1e-9)))
+    return float(np.sqrt(k * area / (np.pi * data.shape[0])))
+
+
+@dataclass(frozen=True)
+class _Squares:
+    """Targets binned into squares (sorted by square) and each square's candidate data."""
+
+    data: np.ndarray
+    order: np.ndarray  # target index of each sorted row
+    pts: np.ndarray  # sorted target positions
+    starts: np.ndarray  # first sorted row of each square
+    counts: np.ndarray  # targets per square
+    ncand: np.ndarray  # candidates per square
+    cand_flat: np.ndarray  # candidates of all squares, concatenated
+    cand_start: np.ndarray  # offsets into cand_flat
+    k: int
+
+    @classmethod
+    def of(cls, data, targets, k, tree, side) -> _Squares:
+        side = max(_typical_kth_distance(data, k) / 5.0, 1e-6) if side is None else float(side)
+        origin = targets.min(axis=0)
+        key = np.floor((targets - origin) / side).astype(np.int64)
+        flat = key[:, 0] * (int(key[:, 1].max()) + 1) + key[:, 1]
+        order = np.argsort(flat, kind="stable")
+        flat_sorted = flat[order]
+        starts = np.flatnonzero(np.r_[True, flat_sorted[1:] != flat_sorted[:-1]])
+        counts = np.diff(np.r_[starts, targets.shape[0]])
+        pts = targets[order]
+        centre = origin + (key[order[starts]] + 0.5) * side
+        sq_of = np.repeat(np.arange(starts.shape[0]), counts)
+        off = pts - centre[sq_of]
+        half = np.zeros(starts.shape[0])
+        np.maximum.at(half, sq_of, np.hypot(off[:, 0], off[:, 1]))
+        dk = tree.query(centre, k=k, workers=-1)[0][:, -1]
+        # Radius d_k(c) + 2h, widened by a hair so rounding cannot drop a candidate on the edge.
+        cands = tree.query_ball_point(centre, (dk + 2.0 * half) * (1.0 + 1e-9) + 1e-12, workers=-1,
+                                      return_sorted=False)
+        ncand = np.fromiter((len(c) for c in cands), dtype=np.int64, count=starts.shape[0])
+        cand_flat = np.fromiter((i for c in cands for i in c), dtype=np.int64, count=int(ncand.sum()))
+        return cls(data, order, pts, starts, counts, ncand, cand_flat, np.r_[0, np.cumsum(ncand)], k)
+
+    def blocks(self) -> list[tuple[int, int]]:
+        """Runs of consecutive squares whose target x candidate distances stay under the size limit."""
+        out, s, n = [], 0, self.starts.shape[0]
+        while s < n:
+            e, cmax, rows = s + 1, int(self.ncand[s]), int(self.counts[s])
+            while e < n:
+                c2, r2 = max(cmax, int(self.ncand[e])), rows + int(self.counts[e])
+                if c2 * r2 > _BLOCK_ELEMENTS:
+                    break
+                cmax, rows, e = c2, r2, e + 1
+            out.append((s, e))
+            s = e
+        return out
+
+    def sets(self, s: int, e: int) -> NeighbourSets:
+        """The sets of squares ``s`` to ``e - 1``."""
+        k, nb = self.k, e - s
+        ncand, tcount = self.ncand[s:e], self.counts[s:e]
+        cmax = int(ncand.max())
+        # Padded candidates of each square (index -1, at infinity).
+        cvalid = np.arange(cmax)[None, :] < ncand[:, None]
+        cidx = np.full((nb, cmax), -1, np.int64)
+        cidx[cvalid] = self.cand_flat[self.cand_start[s]:self.cand_start[e]]
+        cpos = np.full((nb, cmax, 2), np.inf)
+        cpos[cvalid] = self.data[cidx[cvalid]]
+        r0, r1 = int(self.starts[s]), int(self.starts[s] + tcount.sum())
+        sq_local = np.repeat(np.arange(nb), tcount)
+        tpos = self.pts[r0:r1]
+        # Squared distances of each real target to its square's candidates, (rows, cmax).
+        cx, cy = cpos[sq_local, :, 0], cpos[sq_local, :, 1]
+        cx -= tpos[:, 0, None]
+        cy -= tpos[:, 1, None]
+        cx *= cx
+        cy *= cy
+        d2 = cx
+        d2 += cy
+        rows = d2.shape[0]
+        near = np.argpartition(d2, k - 1, axis=1)[:, :k]
+        mask = np.zeros((rows, cmax), bool)
+        np.put_along_axis(mask, near, True, axis=1)
+        first, inverse = _group_rows(np.column_stack([sq_local.astype(np.uint64), _mask_words(mask)]))
+        # Rows grouped by set (stable, so each set's rows keep the square order).
+        by_set = np.argsort(inverse, kind="stable")
+        count = np.bincount(inverse, minlength=first.shape[0])
+        flat = np.flatnonzero(mask[by_set])  # row-major: each row's k columns, ascending
+        colpos = (flat % cmax).reshape(rows, k)
+        head = np.r_[0, np.cumsum(count)[:-1]]
+        members = cidx[sq_local[by_set[head], None], colpos[head]]
+        dist = np.sqrt(d2[by_set].ravel()[flat].reshape(rows, k))
+        return NeighbourSets(self.order[r0:r1][by_set], np.r_[0, np.cumsum(count)], members, dist)
+
+
+def _mask_words(mask: np.ndarray) -> np.ndarray:
+    """Rows of a boolean mask packed into 64-bit words, shape (rows, ceil(columns / 64))."""
+    rows = mask.shape[0]
+    packed = np.packbits(mask, axis=1)
+    width = -(-packed.shape[1] // 8) * 8
+    if width != packed.shape[1]:
+        packed = np.concatenate([packed, np.zeros((rows, width - packed.shape[1]), np.uint8)], axis=1)
+    return np.ascontiguousarray(packed).view(np.uint64)
+
+
+def _group_rows(keys: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Exact grouping of identical rows of a uint64 array.
+
+    Rows are hashed to one integer and grouped by it; every row is then compared in full with its
+    group's first row, and a collision (never seen) falls back to an exact row-wise unique.
+
+    Returns
+    -------
+    first : ndarray, shape (groups,)
+        Row index of one member of each group.
+    inverse : ndarray, shape (rows,)
+        Group of each row.
+    """
+    with np.errstate(over="ignore"):
+        h = (keys * _HASH[: keys.shape[1]]).sum(axis=1, dtype=np.uint64)
+    _, first, inverse = np.unique(h, return_index=True, return_inverse=True)
+    inverse = inverse.reshape(-1)
+    if not np.array_equal(keys, keys[first[inverse]]):
+        _, first, inverse = np.unique(keys, axis=0, return_index=True, return_inverse=True)
+        inverse = inverse.reshape(-1)
+    return first, inverse
