@@ -78,22 +78,6 @@ def grid_axes(bounds: tuple[float, float, float, float], cell_m: float) -> tuple
     return bounds[0] + cell_m * (np.arange(nx) + 0.5), bounds[1] + cell_m * (np.arange(ny) + 0.5)
 
 
-def default_share_m(xy: np.ndarray, cell_m: float, fast: bool = False) -> float | None:
-    """Side of the squares of grid nodes that share one kriging neighbourhood, metres.
-
-    Whole cells up to the mean data spacing sqrt(bounding-box area / n); None (every node its
-    own neighbourhood) when that is under 2 cells, except on the fast path (at least 2 x 2 cells).
-    The difference this makes against per-node neighbourhoods is measured by
-    ``benchmarks/field.py`` (our own choice, no source).
-    """
-    ext = xy.max(axis=0) - xy.min(axis=0)
-    mean_spacing = math.sqrt(max(float(ext[0] * ext[1]), 0.0) / max(xy.shape[0], 1))
-    cells = math.floor(mean_spacing / cell_m + 1e-9)
-    if fast:
-        return max(2, cells) * cell_m
-    return cells * cell_m if cells >= 2 else None
-
-
 def _plane_residuals(xy: np.ndarray, z: np.ndarray) -> np.ndarray:
     a = np.column_stack([np.ones(xy.shape[0]), xy - xy.mean(axis=0)])
     coef, *_ = np.linalg.lstsq(a, z, rcond=None)
@@ -153,16 +137,14 @@ def _kriging_setup(kind, merged, variogram, neighbors, n_targets, cell, spacing,
     if neighbors is None:
         small = n <= DEFAULT_NEIGHBORS or (not fast and n <= 3000 and n * n * max(n_targets, 1) <= 3e10)
         neighbors = None if small else DEFAULT_NEIGHBORS
-    share = default_share_m(merged.xy, cell, fast) if neighbors is not None else None
     cls = OrdinaryKriging if kind == "kriging" else UniversalKriging
-    est = cls(variogram=variogram, neighbors=neighbors, share_m=share)
+    est = cls(variogram=variogram, neighbors=neighbors)
     params = {
         "variogram": variogram.to_dict(),
         "variogram_text": variogram.describe(),
         "variogram_fit": None if fit is None else fit.to_dict(),
         "variogram_choice": choice,
         "neighbors": neighbors,
-        "share_m": share,
         "nugget_as_error": False,
     }
     if kind == "universal":
@@ -243,7 +225,7 @@ def _calibrated_std(chosen, ref, chosen_loo, chosen_cv, targets, at_xy):
                 "std_reference": {
                     "method": "kriging",
                     **{k: kparams.get(k) for k in ("variogram", "variogram_text", "variogram_fit",
-                                                   "variogram_choice", "neighbors", "share_m")},
+                                                   "variogram_choice", "neighbors")},
                 },
             }
             cv = None

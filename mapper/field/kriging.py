@@ -10,11 +10,11 @@ Global solve (``neighbors=None``): for models with a sill the covariance matrix 
 n x targets. The linear model (no covariance) uses an LU factorisation of the bordered
 variogram system.
 
-Moving neighbourhood (``neighbors=k``): each target uses its k nearest data (anisotropic
-distance, via a KD-tree); systems are built and solved in batches. With ``share_m`` targets in
-one square of that side share the k nearest data of the square's centre, so one system is
-factored per square rather than per target (much faster on dense grids; differences from the
-per-target solve are small and measured by ``benchmarks/field.py``).
+Moving neighbourhood (``neighbors=k``): each target uses exactly its own k nearest data
+(anisotropic distance). Targets whose k nearest data are the same set share one factorisation
+of that set's system (:mod:`mapper.field.neighbourhood`), and the sets of one square share the
+elimination of the data every one of them holds; the result is the per-target solve's, to
+rounding (``benchmarks/field.py`` compares it with PyKrige's C backend side by side).
 """
 
 from __future__ import annotations
@@ -31,7 +31,6 @@ from mapper.field.estimator import check_fitted
 from mapper.field.linalg import (
     chol_inverse_rows,
     cholesky_upper,
-    inv_batched,
     lower_solve_inplace,
     solve_batched,
 )
@@ -59,14 +58,12 @@ class _Kriging:
         neighbors: int | None = None,
         *,
         nugget_as_error: bool = False,
-        share_m: float | None = None,
         merge_tol_m: float = MERGE_TOL_M,
     ) -> None:
         # Settings stored as given (checked in fit): the estimator contract of mapper.field.estimator.
         self.variogram = variogram
         self.neighbors = neighbors
         self.nugget_as_error = nugget_as_error
-        self.share_m = share_m
         self.merge_tol_m = merge_tol_m
 
     def _check_settings(self) -> None:
@@ -80,8 +77,6 @@ class _Kriging:
         n = self.neighbors
         if n is not None and (isinstance(n, bool) or not isinstance(n, int | np.integer) or n < 2):
             raise MapperError(f"neighbors must be an integer >= 2 or None (global solve), got {n!r}", where=where)
-        if self.share_m is not None:
-            checks.positive(self.share_m, "share_m (side of a shared-neighbourhood square)", where)
         checks.positive(self.merge_tol_m, "merge_tol_m", where)
 
     # ------------------------------------------------------------------------------ fitting
@@ -189,8 +184,6 @@ class _Kriging:
         tt = self.variogram_.transform(t)
         if self.global_:
             est, var = self._predict_global(tt)
-        elif self.share_m is not None:
-            est, var = self._predict_shared(t, tt)
         else:
             est, var = self._predict_sets(tt)
         return est, np.sqrt(np.maximum(var, 0.0))
@@ -325,92 +318,127 @@ class _Kriging:
     def _predict_sets(self, tt: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
         """Moving neighbourhood, exact: one factorisation per distinct set of k nearest readings.
 
-        Targets whose k nearest readings are the same set share that set's system (grouped by
-        :func:`mapper.field.neighbourhood.map_nearest_sets`). For a set with covariance
-        ``C = L L'``, drift ``F``, values ``z`` and its targets' covariances ``c_1 .. c_w``, one
-        Cholesky factorisation of the bordered matrix ``[[C, B'], [B, D]]`` with
-        ``B' = [F, z, c_1 .. c_w]`` and a large diagonal ``D`` yields ``L`` and, in its lower-left
-        block, the rows of ``L^-1 B'`` (computed from the first k columns only, so ``D`` never
-        enters them). From ``G = L^-1 F``, ``g = L^-1 z`` and ``y_j = L^-1 c_j`` each target's
-        estimate and variance follow by dot products, as in the global solve.
+        Targets are grouped by their set of k nearest readings
+        (:func:`mapper.field.neighbourhood.map_nearest_sets`), square by square. Within a square
+        the candidates nearest its centre, the first ``c``, belong to every set, so the set
+        covariance is ``[[C_cc, C_cr], [C_rc, C_rr]]`` with a shared leading block: per square,
+        ``L_c`` (Cholesky of ``C_cc``), ``X = L_c^-1 C_cN`` and the Schur complement
+        ``S = C_NN - X' X`` over all its other candidates; per set, only the rows ``r`` of the
+        rest are factored, bordered by the drift, the values and the targets' covariances:
+        ``[[S_rr, B_r'], [B_r, D]]`` with ``B_r`` reduced by the core the same way and a large
+        diagonal ``D`` (the lower-left block of the factor, ``L_r^-1 B_r``, is computed from the
+        first columns only, so ``D`` never enters it). Stacking the core and rest parts gives
+        ``G = L^-1 F``, ``g = L^-1 z`` and each target's ``y = L^-1 c``, from which estimate and
+        variance follow by dot products, as in the global solve.
         """
         if not self.variogram_.bounded:
             return self._predict_local(tt)
         m = tt.shape[0]
         est, var = np.empty(m), np.empty(m)
-
-        def consume(block) -> None:
-            width = np.left_shift(1, np.ceil(np.log2(block.count)).astype(np.int64))
-            size0 = self.neighbors + self._n_drift + 1
-            for w in np.unique(width):
-                ids = np.flatnonzero(width == w)
-                step = max(1, _SET_BATCH_ELEMENTS // ((size0 + int(w)) ** 2))
-                for s in range(0, ids.shape[0], step):
-                    self._solve_sets(block, ids[s:s + step], int(w), tt, est, var)
-
-        map_nearest_sets(self.xt_, tt, self.neighbors, consume, self.tree_)
+        map_nearest_sets(self.xt_, tt, self.neighbors, lambda block: self._solve_block(block, tt, est, var),
+                         self.tree_)
         return est, var
 
-    def _solve_sets(self, block, ids: np.ndarray, w: int, tt: np.ndarray, est: np.ndarray,
-                    var: np.ndarray) -> None:
-        """Estimate and variance of the targets of sets ``ids`` of ``block`` (each with <= w targets)."""
+    def _solve_block(self, block, tt: np.ndarray, est: np.ndarray, var: np.ndarray) -> None:
+        """Estimate and variance of one block of targets grouped by neighbourhood."""
+        vg, p = self.variogram_, self._n_drift
+        nsq, cmax = block.cand.shape
+        pad = block.cand < 0
+        cpos = self.xt_[block.cand]
+        cpos[pad] = np.inf
+        with np.errstate(invalid="ignore"):
+            cc = vg.covariance_into(_within(cpos), with_nugget=False)  # (nsq, cmax, cmax)
+        diag = np.arange(cmax)
+        cc[:, diag, diag] = vg.total_sill
+        scale = 1.0
+        if p > 1:  # drift columns scaled by the square's reach, for conditioning only
+            reach = np.where(pad, 0.0, np.max(np.abs(cpos - block.centre[:, None, :]), axis=2))
+            scale = np.maximum(reach.max(axis=1), 1e-12)[:, None, None]
+        bcol = np.empty((nsq, cmax, p + 1))  # drift and value of each candidate
+        bcol[:, :, :p] = self._drift(np.where(pad[..., None], 0.0, cpos), block.centre[:, None, :], scale)
+        bcol[:, :, p] = self.values_[block.cand]
+        bcol[pad] = 0.0
+        # Targets' covariances to their square's candidates, in a (square, slot) layout.
+        kc = np.zeros((nsq, int(block.row_slot.max()) + 1, cmax))
+        kc[block.row_square, block.row_slot] = block.cand_dist
+        kc = vg.covariance_into(kc, with_nugget=False)
+        if vg.nugget > 0 and not self.nugget_as_error:
+            hit = np.flatnonzero(block.on_datum >= 0)
+            kc[block.row_square[hit], block.row_slot[hit], block.on_datum[hit]] += vg.nugget
+        set_core = block.core[block.square]
+        for c in np.unique(block.core):
+            lo, hi = np.searchsorted(block.core, [c, c + 1])  # squares are numbered by core size
+            sqs = slice(int(lo), int(hi))
+            local = np.arange(nsq) - lo
+            ids_c = np.flatnonzero(set_core == c)
+            try:
+                parts = _core_parts(cc[sqs], bcol[sqs], kc[sqs], int(c))
+            except np.linalg.LinAlgError:  # a core not numerically positive definite: no shared block
+                c = 0
+                parts = _core_parts(cc[sqs], bcol[sqs], kc[sqs], 0)
+            width = np.left_shift(1, np.ceil(np.log2(block.count[ids_c])).astype(np.int64))
+            size0 = self.neighbors - int(c) + p + 1
+            for w in np.unique(width):
+                ids = ids_c[width == w]
+                step = max(1, _SET_BATCH_ELEMENTS // ((size0 + int(w)) ** 2))
+                for s in range(0, ids.shape[0], step):
+                    self._solve_sets(block, ids[s:s + step], int(w), int(c), local, parts, scale, tt, est, var)
+
+    def _solve_sets(self, block, ids, w, c, local, parts, scale, tt, est, var) -> None:
+        """The targets of sets ``ids`` of ``block`` (each with at most ``w`` targets, ``c`` core)."""
         vg, k, p = self.variogram_, self.neighbors, self._n_drift
-        nb = ids.shape[0]
-        members = block.members[ids]  # (nb, k)
-        pts = self.xt_[members]
-        c00 = vg.sill if self.nugget_as_error else vg.total_sill
-        # Each set's targets (rows of the block), padded to w slots by repeating the last one.
+        schur, bred, kred, u, v = parts
+        nb, kr = ids.shape[0], k - c
+        sq_block = block.square[ids]
+        sq = local[sq_block]
+        rest = block.colpos[ids, c:] - c  # (nb, kr): positions among the square's other candidates
         count = block.count[ids]
         slot = np.arange(w)
         valid = slot[None, :] < count[:, None]
-        rows = block.start[ids, None] + np.minimum(slot[None, :], count[:, None] - 1)  # (nb, w)
-        size = k + p + 1 + w
-        a = np.empty((nb, size, size))
-        # Lower triangle only (all the factorisation reads): covariances within the set ...
-        _within_into(pts, a[:, :k, :k])
-        cov = vg.covariance_into(a[:, :k, :k], with_nugget=False)
-        if cov.base is not a:  # models computed out of place
-            a[:, :k, :k] = cov
-        diag = np.arange(k)
-        a[:, diag, diag] = vg.total_sill
-        centre = pts.mean(axis=1)
-        scale = 1.0
-        if p > 1:  # drift columns scaled by the neighbourhood size, for conditioning only
-            scale = np.maximum(np.max(np.abs(pts - centre[:, None, :]), axis=(1, 2)), 1e-12)[:, None, None]
-        # ... then the rows of B: drift, values, and the targets' covariances (nugget at lag 0).
-        a[:, k:k + p, :k] = np.swapaxes(self._drift(pts, centre[:, None, :], scale), 1, 2)
-        a[:, k + p, :k] = self.values_[members]
-        h = block.dist[rows]  # (nb, w, k)
-        on_data = (h == 0.0) if (vg.nugget > 0 and not self.nugget_as_error) else None
-        kt = vg.covariance_into(h, with_nugget=False)
-        if on_data is not None:
-            kt[on_data] += vg.nugget
-        a[:, k + p + 1:, :k] = kt
-        a[:, k:, k:] = 0.0
-        tail = np.arange(k, size)
+        rows = block.set_rows[block.start[ids, None] + np.minimum(slot[None, :], count[:, None] - 1)]  # (nb, w)
+        rsq, rsl = local[block.row_square[rows]], block.row_slot[rows]
+        size = kr + p + 1 + w
+        a = np.zeros((nb, size, size))
+        a[:, :kr, :kr] = schur[sq[:, None, None], rest[:, :, None], rest[:, None, :]]
+        a[:, kr:kr + p + 1, :kr] = np.swapaxes(bred[sq[:, None], rest], 1, 2)
+        a[:, kr + p + 1:, :kr] = kred[rsq[:, :, None], rsl[:, :, None], rest[:, None, :]]
+        tail = np.arange(kr, size)
         a[:, tail, tail] = _HUGE
         try:
             low = np.linalg.cholesky(a)
         except np.linalg.LinAlgError:  # some set's covariance is not numerically positive definite
             for i in range(nb):
                 t_i = block.target[rows[i, valid[i]]]
-                est[t_i], var[t_i] = self._bordered_at(members[i], tt[t_i])
+                est[t_i], var[t_i] = self._bordered_at(block.members[ids[i]], tt[t_i])
             return
-        g = low[:, k:k + p, :k]  # (nb, p, k): rows of L^-1 F
-        gz = low[:, k + p, :k]  # (nb, k)
-        y = low[:, k + p + 1:, :k]  # (nb, w, k)
-        gt = np.swapaxes(g, 1, 2)
-        gram = np.matmul(g, gt)  # F' C^-1 F, (nb, p, p)
-        beta = np.linalg.solve(gram, np.matmul(g, gz[:, :, None]))  # (nb, p, 1)
-        r = gz - np.matmul(gt, beta)[:, :, 0]
+        # Core and rest parts stacked: G = L^-1 F (nb, p, k), g = L^-1 z (nb, k), y = L^-1 c (nb, w, k).
+        us = np.swapaxes(u[sq], 1, 2)  # (nb, p + 1, c)
+        g = np.concatenate([us[:, :p], low[:, kr:kr + p, :kr]], axis=2)
+        gz = np.concatenate([us[:, p], low[:, kr + p, :kr]], axis=1)
+        y = np.concatenate([v[rsq, rsl], low[:, kr + p + 1:, :kr]], axis=2)
         tgt = block.target[rows]  # (nb, w)
-        f0 = self._drift(tt[tgt], centre[:, None, :], scale)  # (nb, w, p)
-        e = np.matmul(f0, beta)[:, :, 0] + np.matmul(y, r[:, :, None])[:, :, 0]
-        d = f0 - np.matmul(y, gt)  # (nb, w, p)
-        gi_d = np.linalg.solve(gram, np.swapaxes(d, 1, 2))  # (nb, p, w)
-        v = c00 - np.einsum("bwk,bwk->bw", y, y) + np.einsum("bwp,bpw->bw", d, gi_d)
+        c00 = vg.sill if self.nugget_as_error else vg.total_sill
+        if p == 1:  # ordinary kriging: G is one row, F' C^-1 F a number
+            g1 = g[:, 0]
+            gram = np.einsum("bk,bk->b", g1, g1)
+            beta = np.einsum("bk,bk->b", g1, gz) / gram
+            r = gz - g1 * beta[:, None]
+            e = beta[:, None] + np.matmul(y, r[:, :, None])[:, :, 0]
+            d = 1.0 - np.matmul(y, g1[:, :, None])[:, :, 0]  # (nb, w)
+            v_ = c00 - np.einsum("bwk,bwk->bw", y, y) + d * d / gram[:, None]
+        else:
+            gt = np.swapaxes(g, 1, 2)
+            gram = np.matmul(g, gt)  # F' C^-1 F, (nb, p, p)
+            beta = np.linalg.solve(gram, np.matmul(g, gz[:, :, None]))  # (nb, p, 1)
+            r = gz - np.matmul(gt, beta)[:, :, 0]
+            sc = scale if np.isscalar(scale) else scale[sq_block]
+            f0 = self._drift(tt[tgt], block.centre[sq_block][:, None, :], sc)  # (nb, w, p)
+            e = np.matmul(f0, beta)[:, :, 0] + np.matmul(y, r[:, :, None])[:, :, 0]
+            d = f0 - np.matmul(y, gt)  # (nb, w, p)
+            gi_d = np.linalg.solve(gram, np.swapaxes(d, 1, 2))  # (nb, p, w)
+            v_ = c00 - np.einsum("bwk,bwk->bw", y, y) + np.einsum("bwp,bpw->bw", d, gi_d)
         est[tgt[valid]] = e[valid]
-        var[tgt[valid]] = v[valid]
+        var[tgt[valid]] = v_[valid]
 
     def _bordered_at(self, members: np.ndarray, tt: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
         """Estimate and variance at targets ``tt`` from one neighbourhood, by the bordered solve."""
@@ -422,46 +450,6 @@ class _Kriging:
         k = members.shape[0]
         return (np.einsum("bk,bk->b", w[:, :k], self.values_[idx]),
                 np.einsum("bk,bk->b", w, rhs) - self._g00())
-
-    def _predict_shared(self, t: np.ndarray, tt: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-        k, m, side = self.neighbors, t.shape[0], self.share_m
-        origin = t.min(axis=0)
-        key = np.floor((t - origin) / side).astype(np.int64)
-        flat = key[:, 0] * (int(key[:, 1].max()) + 1) + key[:, 1]
-        uniq, first, tile = np.unique(flat, return_index=True, return_inverse=True)
-        centres = origin + (key[first] + 0.5) * side
-        ct = self.variogram_.transform(centres)
-        order = np.argsort(tile, kind="stable")
-        counts = np.bincount(tile, minlength=uniq.shape[0])
-        start = np.concatenate([[0], np.cumsum(counts)])
-        est, var = np.empty(m), np.empty(m)
-        n_tiles = uniq.shape[0]
-        cmax_all = int(counts.max())
-        batch = max(1, min(_LOCAL_BATCH, (2**21) // max(1, cmax_all * (k + self._n_drift))))
-        for s in range(0, n_tiles, batch):
-            e = min(n_tiles, s + batch)
-            _, idx = self.tree_.query(ct[s:e], k=k)
-            a, pts, scale = self._local_matrices(idx, ct[s:e])
-            sel = order[start[s]:start[e]]
-            tid = tile[sel] - s
-            pos = np.arange(sel.shape[0]) - (start[tile[sel]] - start[s])
-            cmax = int(counts[s:e].max())
-            tp = np.zeros((e - s, cmax, 2))
-            tp[tid, pos] = tt[sel]
-            g = self._rhs_gamma(_square_lags(pts, tp))  # (tiles, c, k)
-            f0 = self._drift(tp, ct[s:e, None, :], scale)  # (tiles, c, p)
-            # One inverse per square, then batched matrix products for all its targets (cheaper
-            # than a multi-right-hand-side solve for small systems); rows are weight vectors.
-            ainv = inv_batched(a)
-            w = np.matmul(g, np.ascontiguousarray(ainv[:, :k, :]))
-            w += np.matmul(f0, np.ascontiguousarray(ainv[:, k:, :]))
-            est_b = np.einsum("tck,tk->tc", w[:, :, :k], self.values_[idx])
-            var_b = np.einsum("tck,tck->tc", w[:, :, :k], g)
-            var_b += np.einsum("tcp,tcp->tc", w[:, :, k:], f0)
-            var_b -= self._g00()
-            est[sel] = est_b[tid, pos]
-            var[sel] = var_b[tid, pos]
-        return est, var
 
     # ------------------------------------------------------------------------------ cross-validation
     def loo(self, at: np.ndarray | None = None) -> tuple[np.ndarray, np.ndarray]:
@@ -486,6 +474,41 @@ class _Kriging:
             err, std = _loo_global(self)
             return err[ids], std[ids]
         return _loo_local(self, ids)
+
+
+def _core_parts(cc: np.ndarray, bcol: np.ndarray, kc: np.ndarray, c: int):
+    """Per square, eliminate the ``c`` core candidates shared by all its sets.
+
+    Parameters
+    ----------
+    cc : ndarray, shape (q, n, n)
+        Covariances among each square's candidates (core first).
+    bcol : ndarray, shape (q, n, p + 1)
+        Drift columns and values of the candidates.
+    kc : ndarray, shape (q, t, n)
+        Covariances from each square's targets to its candidates.
+    c : int
+        Core size.
+
+    Returns
+    -------
+    schur, bred, kred, u, v
+        Schur complement of the core over the other candidates (q, n - c, n - c), the reduced
+        drift/value columns (q, n - c, p + 1) and target covariances (q, t, n - c), and the core
+        parts ``L_c^-1 B_c`` (q, c, p + 1) and ``L_c^-1 k_c`` as rows (q, t, c).
+    """
+    if c == 0:
+        q, t = kc.shape[:2]
+        return cc, bcol, kc, np.zeros((q, 0, bcol.shape[2])), np.zeros((q, t, 0))
+    li = np.linalg.inv(np.linalg.cholesky(cc[:, :c, :c]))  # (q, c, c), lower triangular
+    x = np.matmul(li, cc[:, :c, c:])  # (q, c, n - c)
+    xt = np.swapaxes(x, 1, 2)
+    schur = cc[:, c:, c:] - np.matmul(xt, x)
+    u = np.matmul(li, bcol[:, :c])
+    bred = bcol[:, c:] - np.matmul(xt, u)
+    v = np.matmul(kc[:, :, :c], np.swapaxes(li, 1, 2))
+    kred = kc[:, :, c:] - np.matmul(v, x)
+    return schur, bred, kred, u, v
 
 
 def _pairwise(xt: np.ndarray) -> np.ndarray:
@@ -518,16 +541,6 @@ def _within_into(pts: np.ndarray, out: np.ndarray) -> np.ndarray:
     dy *= dy
     out += dy
     return np.sqrt(out, out=out)
-
-
-def _square_lags(pts: np.ndarray, tp: np.ndarray) -> np.ndarray:
-    """Distances (T, c, k) from targets ``tp`` (T, c, 2) to their square's data ``pts`` (T, k, 2)."""
-    hx = np.ascontiguousarray(pts[..., 0])[:, None, :] - np.ascontiguousarray(tp[..., 0])[:, :, None]
-    hx *= hx
-    hy = np.ascontiguousarray(pts[..., 1])[:, None, :] - np.ascontiguousarray(tp[..., 1])[:, :, None]
-    hy *= hy
-    hx += hy
-    return np.sqrt(hx, out=hx)
 
 
 def _to_point(pts: np.ndarray, t: np.ndarray) -> np.ndarray:
@@ -609,9 +622,6 @@ class OrdinaryKriging(_Kriging):
         Moving neighbourhood of this many nearest readings; None solves globally.
     nugget_as_error : bool
         Treat the nugget as measurement error and filter it (estimate not exact at data).
-    share_m : float, optional
-        Side of the squares whose targets share one neighbourhood, metres (moving
-        neighbourhood only); None gives every target its own k nearest.
     merge_tol_m : float
         Readings closer than this are merged as repeats, metres.
     """
@@ -629,7 +639,7 @@ class UniversalKriging(_Kriging):
         Variogram of the residual from the trend, used as is; None fits one to the data.
     drift : str
         ``linear`` (the only drift offered).
-    neighbors, nugget_as_error, share_m, merge_tol_m
+    neighbors, nugget_as_error, merge_tol_m
         As for :class:`OrdinaryKriging`.
     """
 
@@ -643,14 +653,10 @@ class UniversalKriging(_Kriging):
         neighbors: int | None = None,
         *,
         nugget_as_error: bool = False,
-        share_m: float | None = None,
         merge_tol_m: float = MERGE_TOL_M,
     ) -> None:
         self.drift = drift
-        super().__init__(
-            variogram, neighbors, nugget_as_error=nugget_as_error, share_m=share_m,
-            merge_tol_m=merge_tol_m,
-        )
+        super().__init__(variogram, neighbors, nugget_as_error=nugget_as_error, merge_tol_m=merge_tol_m)
 
     def _check_settings(self) -> None:
         checks.choose(self.drift, DRIFTS, "drift", "UniversalKriging")

@@ -38,23 +38,55 @@ T = TypeVar("T")
 class NeighbourSets:
     """A block of targets grouped by their set of k nearest data.
 
+    The block also keeps the structure it was found with, for methods that share work within a
+    square: every target belongs to one square; a square's candidates are sorted by distance
+    from its centre, and the first ``core`` candidates of every square are members of every set
+    of that square (a common leading block).
+
     Attributes
     ----------
     target : ndarray, shape (r,), int64
-        Indices of the block's targets (into the caller's target array), grouped by set: the
-        targets of set ``j`` are ``target[start[j]:start[j + 1]]``.
+        Indices of the block's targets into the caller's target array, square by square.
+    row_square, row_slot : ndarray, shape (r,), int64
+        Square of each target (0 .. squares - 1) and its place among the square's targets.
+    set_rows : ndarray, shape (r,), int64
+        The rows grouped by set: set ``j`` serves rows ``set_rows[start[j]:start[j + 1]]``.
     start : ndarray, shape (S + 1,), int64
-        Offsets of each set's targets in ``target``.
+        Offsets of each set's rows in ``set_rows``.
     members : ndarray, shape (S, k), int64
-        Data indices of each set.
-    dist : ndarray, shape (r, k)
-        Distance from each target to the members of its set, in the order of ``members``, metres.
+        Data indices of each set, in the order of its candidate positions.
+    square : ndarray, shape (S,), int64
+        Square of each set.
+    colpos : ndarray, shape (S, k), int64
+        Candidate positions of each set's members in its square, ascending (so the first
+        ``core`` are 0 .. core - 1).
+    cand : ndarray, shape (squares, c), int64
+        Data index of each square's candidates, nearest the centre first; -1 pads.
+    centre : ndarray, shape (squares, 2)
+        Centre of each square, metres.
+    cand_dist : ndarray, shape (r, c)
+        Distance from each target to its square's candidates, metres (inf at pads); a consumer
+        may overwrite it.
+    on_datum : ndarray, shape (r,), int64
+        Candidate position of the datum a target coincides with (distance 0), or -1.
+    core : ndarray, shape (squares,), int64
+        Leading candidates of each square shared by every set of that square, ascending (squares
+        are numbered by it).
     """
 
     target: np.ndarray
+    row_square: np.ndarray
+    row_slot: np.ndarray
+    set_rows: np.ndarray
     start: np.ndarray
     members: np.ndarray
-    dist: np.ndarray
+    square: np.ndarray
+    colpos: np.ndarray
+    cand: np.ndarray
+    centre: np.ndarray
+    cand_dist: np.ndarray
+    on_datum: np.ndarray
+    core: np.ndarray
 
     @property
     def n_sets(self) -> int:
@@ -65,6 +97,16 @@ class NeighbourSets:
     def count(self) -> np.ndarray:
         """Targets of each set, shape (S,)."""
         return np.diff(self.start)
+
+    def set_of_rows(self) -> np.ndarray:
+        """Set of each row, shape (r,)."""
+        out = np.empty(self.target.shape[0], np.int64)
+        out[self.set_rows] = np.repeat(np.arange(self.n_sets), self.count)
+        return out
+
+    def dist(self) -> np.ndarray:
+        """Distance from each row's target to the members of its set, shape (r, k), metres."""
+        return np.take_along_axis(self.cand_dist, self.colpos[self.set_of_rows()], axis=1)
 
 
 def worker_count() -> int:
@@ -126,19 +168,25 @@ def map_nearest_sets(
 
 
 def nearest_sets(data: np.ndarray, targets: np.ndarray, k: int, tree: cKDTree | None = None,
-                 side: float | None = None) -> NeighbourSets:
-    """All targets' sets of k nearest data in one :class:`NeighbourSets` (see :func:`map_nearest_sets`)."""
-    parts = map_nearest_sets(data, targets, k, lambda b: b, tree, side)
-    if not parts:
-        return NeighbourSets(np.empty(0, np.int64), np.zeros(1, np.int64), np.empty((0, k), np.int64),
-                             np.empty((0, k)))
-    offsets = np.cumsum([0] + [p.target.shape[0] for p in parts[:-1]])
-    return NeighbourSets(
-        np.concatenate([p.target for p in parts]),
-        np.concatenate([[0]] + [p.start[1:] + o for p, o in zip(parts, offsets, strict=True)]),
-        np.concatenate([p.members for p in parts]),
-        np.concatenate([p.dist for p in parts]),
-    )
+                 side: float | None = None) -> tuple[np.ndarray, np.ndarray]:
+    """Every target's set of k nearest data, as set members and the set of each target.
+
+    Returns
+    -------
+    members : ndarray, shape (S, k), int64
+        Data indices of each distinct set.
+    set_of : ndarray, shape (m,), int64
+        Row of ``members`` used by each target.
+    """
+    m = np.asarray(targets).shape[0]
+    parts = map_nearest_sets(data, targets, k, lambda b: (b.target, b.set_of_rows(), b.members), tree, side)
+    set_of = np.empty(m, np.int64)
+    offset = 0
+    for target, rows_set, _ in parts:
+        set_of[target] = rows_set + offset
+        offset += _.shape[0]
+    members = np.concatenate([p[2] for p in parts]) if parts else np.empty((0, k), np.int64)
+    return members, set_of
 
 
 def _typical_kth_distance(data: np.ndarray, k: int) -> float:
@@ -160,6 +208,7 @@ class _Squares:
     ncand: np.ndarray  # candidates per square
     cand_flat: np.ndarray  # candidates of all squares, concatenated
     cand_start: np.ndarray  # offsets into cand_flat
+    centre: np.ndarray  # centre of each square
     k: int
 
     @classmethod
@@ -183,11 +232,18 @@ class _Squares:
         cands = tree.query_ball_point(centre, (dk + 2.0 * half) * (1.0 + 1e-9) + 1e-12, workers=-1,
                                       return_sorted=False)
         ncand = np.fromiter((len(c) for c in cands), dtype=np.int64, count=starts.shape[0])
+        # Squares ordered by candidate count, so the blocks cut from them carry little padding.
+        perm = np.argsort(ncand, kind="stable")
+        ncand, counts, centre = ncand[perm], counts[perm], centre[perm]
+        new_starts = np.r_[0, np.cumsum(counts)[:-1]]
+        rows = np.repeat(starts[perm] - new_starts, counts) + np.arange(targets.shape[0])
+        order, pts, starts = order[rows], pts[rows], new_starts
+        cands = [cands[i] for i in perm]
         cand_flat = np.fromiter((i for c in cands for i in c), dtype=np.int64, count=int(ncand.sum()))
-        return cls(data, order, pts, starts, counts, ncand, cand_flat, np.r_[0, np.cumsum(ncand)], k)
+        return cls(data, order, pts, starts, counts, ncand, cand_flat, np.r_[0, np.cumsum(ncand)], centre, k)
 
     def blocks(self) -> list[tuple[int, int]]:
-        """Runs of consecutive squares whose target x candidate distances stay under the size limit."""
+        """Runs of squares whose target x candidate distances stay under the size limit."""
         out, s, n = [], 0, self.starts.shape[0]
         while s < n:
             e, cmax, rows = s + 1, int(self.ncand[s]), int(self.counts[s])
@@ -205,16 +261,23 @@ class _Squares:
         k, nb = self.k, e - s
         ncand, tcount = self.ncand[s:e], self.counts[s:e]
         cmax = int(ncand.max())
-        # Padded candidates of each square (index -1, at infinity).
+        # Padded candidates of each square (index -1, at infinity), nearest the centre first.
         cvalid = np.arange(cmax)[None, :] < ncand[:, None]
         cidx = np.full((nb, cmax), -1, np.int64)
         cidx[cvalid] = self.cand_flat[self.cand_start[s]:self.cand_start[e]]
+        centre = self.centre[s:e]
         cpos = np.full((nb, cmax, 2), np.inf)
         cpos[cvalid] = self.data[cidx[cvalid]]
+        with np.errstate(invalid="ignore"):
+            near_centre = np.argsort(np.hypot(cpos[..., 0] - centre[:, None, 0], cpos[..., 1] - centre[:, None, 1]),
+                                     axis=1, kind="stable")
+        cidx = np.take_along_axis(cidx, near_centre, axis=1)
+        cpos = np.take_along_axis(cpos, near_centre[..., None], axis=1)
         r0, r1 = int(self.starts[s]), int(self.starts[s] + tcount.sum())
         sq_local = np.repeat(np.arange(nb), tcount)
+        slot = np.arange(r1 - r0) - np.repeat(self.starts[s:e] - r0, tcount)
         tpos = self.pts[r0:r1]
-        # Squared distances of each real target to its square's candidates, (rows, cmax).
+        # Squared distances of each target to its square's candidates, (rows, cmax).
         cx, cy = cpos[sq_local, :, 0], cpos[sq_local, :, 1]
         cx -= tpos[:, 0, None]
         cy -= tpos[:, 1, None]
@@ -223,19 +286,31 @@ class _Squares:
         d2 = cx
         d2 += cy
         rows = d2.shape[0]
-        near = np.argpartition(d2, k - 1, axis=1)[:, :k]
+        near = np.argpartition(d2, [0, k - 1] if k > 1 else 0, axis=1)[:, :k]
         mask = np.zeros((rows, cmax), bool)
         np.put_along_axis(mask, near, True, axis=1)
+        nearest = near[:, 0]
+        on_datum = np.where(d2[np.arange(rows), nearest] == 0.0, nearest, -1)
+        # The leading candidates every target of a square selects (at least those nearer the
+        # centre than d_k(c) - 2h, by the triangle inequality; found here, not assumed).
+        lead = np.where(mask.all(axis=1), cmax, np.argmin(mask, axis=1))
+        core = np.minimum.reduceat(lead, self.starts[s:e] - r0)
         first, inverse = _group_rows(np.column_stack([sq_local.astype(np.uint64), _mask_words(mask)]))
-        # Rows grouped by set (stable, so each set's rows keep the square order).
-        by_set = np.argsort(inverse, kind="stable")
+        set_rows = np.argsort(inverse, kind="stable")
         count = np.bincount(inverse, minlength=first.shape[0])
-        flat = np.flatnonzero(mask[by_set])  # row-major: each row's k columns, ascending
-        colpos = (flat % cmax).reshape(rows, k)
-        head = np.r_[0, np.cumsum(count)[:-1]]
-        members = cidx[sq_local[by_set[head], None], colpos[head]]
-        dist = np.sqrt(d2[by_set].ravel()[flat].reshape(rows, k))
-        return NeighbourSets(self.order[r0:r1][by_set], np.r_[0, np.cumsum(count)], members, dist)
+        colpos = np.flatnonzero(mask[first]).reshape(first.shape[0], k) % cmax
+        square = sq_local[first]
+        members = cidx[square[:, None], colpos]
+        # Squares renumbered by core size, so squares of one core size are consecutive.
+        by_core = np.argsort(core, kind="stable")
+        renumber = np.empty(nb, np.int64)
+        renumber[by_core] = np.arange(nb)
+        return NeighbourSets(
+            target=self.order[r0:r1], row_square=renumber[sq_local], row_slot=slot, set_rows=set_rows,
+            start=np.r_[0, np.cumsum(count)], members=members, square=renumber[square], colpos=colpos,
+            cand=cidx[by_core], centre=centre[by_core], cand_dist=np.sqrt(d2, out=d2), on_datum=on_datum,
+            core=core[by_core],
+        )
 
 
 def _mask_words(mask: np.ndarray) -> np.ndarray:

@@ -33,8 +33,7 @@ def reference_kriging(g):
     """The ordinary kriging the grid's std was calibrated on, rebuilt from its recorded parameters."""
     ref = g.params["std_reference"]
     assert ref["method"] == "kriging"
-    return OrdinaryKriging(variogram=Variogram.from_dict(ref["variogram"]), neighbors=ref["neighbors"],
-                           share_m=ref["share_m"])
+    return OrdinaryKriging(variogram=Variogram.from_dict(ref["variogram"]), neighbors=ref["neighbors"])
 
 
 def test_calibrated_rbf_std_on_a_simulated_field():
