@@ -78,11 +78,20 @@ def _cv(c) -> dict | None:
     return None if c is None else _plain(asdict(c))
 
 
+def stored_params(data: bytes) -> dict:
+    """The settings object of a stored field model, as written in the file (``params``)."""
+    import io
+
+    with np.load(io.BytesIO(data), allow_pickle=False) as npz:
+        return json.loads(npz["meta"].tobytes().decode("utf-8"))["params"]
+
+
 def grid_figures(grid) -> dict:
     """The field model's figures: method, reason, parameters as stored, CV and the arrays' statistics."""
     from mapper.field import field_from_bytes, field_to_bytes
 
-    stored = json.loads(json.dumps(field_from_bytes(field_to_bytes(grid)).params, allow_nan=True))
+    grid = field_from_bytes(field_to_bytes(grid))  # what a survey file keeps
+    stored = stored_params(field_to_bytes(grid))
     return {
         "method": grid.method,
         "reason": grid.reason,
