@@ -636,7 +636,7 @@ class FieldSettings:
     @property
     def neighbors(self) -> int | None:
         """Moving neighbourhood size of the method, readings (None: every reading, or no such setting)."""
-        return getattr(self.estimator, "neighbors", None)
+        return None if isinstance(self.estimator, PhysicsSettings) else self.estimator.neighbors
 
     @property
     def prediction_height_m(self) -> float | None:
