@@ -98,14 +98,15 @@ def run(args) -> int:
     say(f"from {len(values)} corrected readings at {positions} positions "
         f"(corrections: {', '.join(corrected.applied) or 'none'})")
     say(f"why: {field_text_in(grid.reason, unit)}")
-    text = grid.params.get("variogram_text")
-    if text:
-        fit = grid.params.get("variogram_fit")
+    settings = grid.settings
+    kriging = settings.kriging if settings is not None else None
+    if kriging is not None and kriging.variogram_text:
+        fit = kriging.variogram_fit
         origin = "given on the command line" if fit is None else (
-            f"fitted, R² {fit['r2']:.3f}, {fit['n_bins']} lag bins, "
-            + ("converged" if fit["converged"] else "did NOT converge")
+            f"fitted, R² {fit.r2:.3f}, {fit.n_bins} lag bins, "
+            + ("converged" if fit.converged else "did NOT converge")
         )
-        say(f"variogram: {text} ({origin})")
+        say(f"variogram: {kriging.variogram_text} ({origin})")
     if grid.cv_table:
         rows = []
         for c in grid.cv_table:
@@ -119,17 +120,16 @@ def run(args) -> int:
         say("leave-one-out cross-validation (* = chosen):")
         say(table(rows, ["method", "n", "RMSE", "MAE", "mean error", "std. error mean / RMS"]))
         say("standardised errors near 0 (mean) and 1 (RMS) mean the standard deviation map is honest")
-    split = grid.params.get("loo_split")
-    if split:
-        for name, label in (("near_sources", "near sources"), ("quiet", "elsewhere")):
-            st = split[name]
-            if st["n"]:
-                rms = "-" if st["rms_standardized"] is None else f"{st['rms_standardized']:.2f}"
-                say(f"  {label}: {st['n']} readings, RMSE {fmt(st['rmse_v_per_m'], unit)}, standardised RMS {rms}")
-    phys = grid.params.get("physics")
-    if phys:
-        say(f"physical model: {len(phys['sources'])} source(s); see 'mapper sources {args.survey}'")
-    source = grid.params.get("std_source")
-    if source:
-        say(f"standard deviation: {source}")
+    phys = settings.physics if settings is not None else None
+    split = phys.loo_split if phys is not None else None
+    if split is not None:
+        for st, label in ((split.near_sources, "near sources"), (split.quiet, "elsewhere")):
+            if st.n:
+                rms = "-" if st.rms_standardized is None else f"{st.rms_standardized:.2f}"
+                say(f"  {label}: {st.n} readings, RMSE {fmt(st.rmse_v_per_m, unit)}, standardised RMS {rms}")
+    if phys is not None:
+        say(f"physical model: {len(phys.sources)} source(s); see 'mapper sources {args.survey}'")
+    std = settings.std if settings is not None else None
+    if std is not None and std.source:
+        say(f"standard deviation: {std.source}")
     return 0

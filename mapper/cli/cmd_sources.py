@@ -37,7 +37,7 @@ def run(args) -> int:
     products.require_field()
     grid = products.grid
     records = source_records(grid, products.site)
-    phys = grid.params.get("physics", {})
+    phys = grid.settings.physics if grid.settings is not None else None
     if args.json:
         say(json.dumps({
             "survey": products.name,
@@ -45,8 +45,8 @@ def run(args) -> int:
             "crs": products.crs.crs.to_string(),
             "coordinates": "site metres",
             "field_model": products.field_note,
-            "background_v_per_m": phys.get("background_v_per_m"),
-            "meter_height_m": phys.get("meter_height_m"),
+            "background_v_per_m": None if phys is None else phys.background_v_per_m,
+            "meter_height_m": None if phys is None else phys.meter_height_m,
             "sources": records,
             "limitations": list(LIMITATIONS),
         }, indent=2, allow_nan=False))
@@ -55,7 +55,7 @@ def run(args) -> int:
         warn(message)
     unit = products.display_unit
     say(f"{products.name}: {len(records)} likely charged object(s), largest field first "
-        f"(physical model, meter at {phys.get('meter_height_m', 0):.2f} m; {products.field_note})")
+        f"(physical model, meter at {0 if phys is None else phys.meter_height_m:.2f} m; {products.field_note})")
     if not records:
         say("no charged source explains the readings better than the background and noise")
     rows = []
@@ -70,7 +70,7 @@ def run(args) -> int:
         ])
     if rows:
         say(table(rows, ["id", "kind", "where", "height", "charge", "peak field", "status"]))
-    say(f"background field {fmt(phys.get('background_v_per_m', 0.0), unit)}")
+    say(f"background field {fmt(0.0 if phys is None else phys.background_v_per_m, unit)}")
     for line in LIMITATIONS:
         say(f"note: {line}")
     return 0

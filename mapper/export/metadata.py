@@ -8,6 +8,7 @@ from dataclasses import dataclass
 from mapper import __version__
 from mapper.features import CAUTIONS, LIMITS_ARE_DEFAULTS
 from mapper.features.limits import DEFAULT_RULES
+from mapper.field.settings import FieldSettings
 from mapper.survey.store import to_utc_text, utc_now
 from mapper.units import format_field
 from mapper.workflow import Products
@@ -135,11 +136,10 @@ def metadata_rows(products: Products, exported_utc: str | None = None) -> list[M
         add("field", "source", p.field_source)
         add("field", "cell", _num(g.cell_m), "m")
         add("field", "grid_nodes", f"{len(g.x)} x {len(g.y)}")
-        for key in ("variogram_text", "std_source", "std_scale", "neighbors", "kernel", "smoothing", "power", "drift",
-                    "n_readings", "n_positions", "repeatability_v_per_m", "data_spacing_m"):
-            if g.params.get(key) is not None:
+        for key, value in _field_facts(g.settings):
+            if value is not None:
                 unit = "V/m" if key.endswith("v_per_m") else "m" if key.endswith("_m") else ""
-                add("field", key, g.params[key] if not isinstance(g.params[key], float) else _num(g.params[key]), unit)
+                add("field", key, value if not isinstance(value, float) else _num(value), unit)
         for c in g.cv_table or ((g.cv,) if g.cv else ()):
             prefix = c.method + (" (chosen)" if c.method == g.method else "")
             add("cross_validation", f"{prefix} n", c.n)
@@ -164,6 +164,28 @@ def metadata_rows(products: Products, exported_utc: str | None = None) -> list[M
     for i, caution in enumerate(CAUTIONS, start=1):
         add("cautions", f"caution {i}", caution)
     return rows
+
+
+def _field_facts(settings: FieldSettings | None) -> list[tuple[str, object]]:
+    """(key, value) facts of a field model's settings, in the table's order (None: not applicable)."""
+    if settings is None:
+        return []
+    s = settings
+    k, r, i, std = s.kriging, s.rbf, s.idw, s.std
+    return [
+        ("variogram_text", k and k.variogram_text),
+        ("std_source", std and std.source),
+        ("std_scale", std and std.scale),
+        ("neighbors", s.neighbors),
+        ("kernel", r and r.kernel),
+        ("smoothing", r and r.smoothing),
+        ("power", i and i.power),
+        ("drift", k and k.drift),
+        ("n_readings", s.n_readings),
+        ("n_positions", s.n_positions),
+        ("repeatability_v_per_m", s.repeatability_v_per_m),
+        ("data_spacing_m", s.data_spacing_m),
+    ]
 
 
 def _drift_facts(report) -> list[tuple[str, str, str]]:

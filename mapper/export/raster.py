@@ -230,7 +230,7 @@ def write_geotiff(grid: FieldGrid, ecrs: ExportCRS, path: str | Path, *, outline
             dst.descriptions = BAND_NAMES
             dst.units = ("V/m", "V/m")
             meta = {"method": grid.method, "cell_m": f"{grid.cell_m:g}", "reason": grid.reason,
-                    "params": json.dumps(grid.params, default=str),
+                    "params": json.dumps({} if grid.settings is None else grid.settings.to_dict(), default=str),
                     "resampling": ("bilinear from the rotated field grid onto this north-up grid"
                                    if r.resampled else "none (the field grid itself)")}
             meta.update({k: str(v) for k, v in (tags or {}).items()})

@@ -464,9 +464,9 @@ def sign_and_height(p: Products) -> str:
         height = f"Measurement height: {heights[0]:.2f} m above the floor."
     else:
         height = f"Measurement height: {heights[0]:.2f}-{heights[-1]:.2f} m above the floor."
-    if p.grid is not None and p.grid.params.get("prediction_height_m") is not None and \
-            p.grid.params.get("prediction_height_m") not in heights:
-        height += f" The map shows the field at {p.grid.params['prediction_height_m']:.2f} m (physical model)."
+    shown = None if p.grid is None or p.grid.settings is None else p.grid.settings.prediction_height_m
+    if shown is not None and shown not in heights:
+        height += f" The map shows the field at {shown:.2f} m (physical model)."
     return f"{sign} {height}"
 
 
@@ -571,9 +571,11 @@ def draw_findings_page(fig: Figure, products: Products) -> None:
         col.para(p.no_field_reason or "No field model.", 7.5)
     else:
         g = p.grid
+        kriging = None if g.settings is None else g.settings.kriging
+        physics = None if g.settings is None else g.settings.physics
         col.para(f"{g.method}, cell {g.cell_m:g} m. {field_text_in(g.reason, unit)}", 7.5)
-        if g.params.get("variogram_text"):
-            col.para(f"Variogram: {g.params['variogram_text']}.", 7.5)
+        if kriging is not None and kriging.variogram_text:
+            col.para(f"Variogram: {kriging.variogram_text}.", 7.5)
         table = g.cv_table or ((g.cv,) if g.cv else ())
         if table:
             stops = (0.0, 0.09, 0.17, 0.25, 0.34, 0.43)
@@ -585,22 +587,22 @@ def draw_findings_page(fig: Figure, products: Products) -> None:
                          "-" if c.mean_standardized is None else f"{c.mean_standardized:.2f}",
                          "-" if c.rms_standardized is None else
                          f"{c.rms_standardized:.2f}" + (" †" if _calibrated(g, c) else "")], stops)
-            split = g.params.get("loo_split")
-            if split:
+            split = None if physics is None else physics.loo_split
+            if split is not None:
                 parts = []
-                for key, label in (("near_sources", "near sources"), ("quiet", "elsewhere")):
-                    st_ = split[key]
-                    if st_["n"] and st_["rms_standardized"] is not None:
-                        parts.append(f"{label} {st_['n']} readings, RMSE {format_field(st_['rmse_v_per_m'], unit, 3)}, "
-                                     f"RMS z {st_['rms_standardized']:.2f}")
+                for st_, label in ((split.near_sources, "near sources"), (split.quiet, "elsewhere")):
+                    if st_.n and st_.rms_standardized is not None:
+                        parts.append(f"{label} {st_.n} readings, RMSE {format_field(st_.rmse_v_per_m, unit, 3)}, "
+                                     f"RMS z {st_.rms_standardized:.2f}")
                 if parts:
                     col.para("Physical model, " + "; ".join(parts) + ".", 6.8)
             col.para("Leave-one-out: each reading predicted from the others. z = error / predicted standard "
                      "deviation; mean z near 0 and RMS z near 1 mean the stated uncertainty is honest.", 6.8,
                      color="#444444")
-            if g.params.get("std_scale") is not None:
+            scale = _std_scale(g)
+            if scale is not None:
                 col.para(f"† {g.method} gives no standard deviation of its own: the map's is the ordinary "
-                         f"kriging standard deviation scaled locally (site-wide factor {g.params['std_scale']:.3g}, "
+                         f"kriging standard deviation scaled locally (site-wide factor {scale:.3g}, "
                          "set near each place by the nearby leave-one-out errors) so that its RMS z is 1 by "
                          "construction; mean z and the share of |z| <= 1.96 remain the checks.", 6.8,
                          color="#444444")
@@ -647,7 +649,7 @@ def draw_sources_page(fig: Figure, products: Products) -> None:
     unit = p.display_unit
     _title(fig, p, "likely charged objects")
     rows = source_records(p.grid, p.site)
-    phys = p.grid.params.get("physics", {})
+    phys = p.grid.settings.physics if p.grid.settings is not None else None
     ax = fig.add_axes((0.06, 0.40, 0.88, 0.46))
     frame_axes(ax, p.site)
     draw_site(ax, p.site, labels=False)
@@ -677,10 +679,11 @@ def draw_sources_page(fig: Figure, products: Products) -> None:
             col.row([r["source_id"], r["kind"], where, f"{r['height_m']:.2f} ± {r['height_std_m']:.2f} m",
                      f"{_charge_text(r['charge_c'])} ± {_charge_text(abs(r['charge_std_c']))[1:]}",
                      format_field(r["peak_v_per_m"], unit, 3), r["status"]], stops)
-    col.para(f"Meter height {phys.get('meter_height_m', 0.0):.2f} m; background field "
-             f"{format_field(phys.get('background_v_per_m', 0.0), unit, 3)}; meter error model "
-             f"{format_field(phys.get('noise_floor_v_per_m', 0.0), unit, 3)} + "
-             f"{100 * phys.get('noise_share', 0.0):.1f} % of the source field.", 7.5)
+    if phys is not None:
+        col.para(f"Meter height {phys.meter_height_m:.2f} m; background field "
+                 f"{format_field(phys.background_v_per_m, unit, 3)}; meter error model "
+                 f"{format_field(phys.noise_floor_v_per_m, unit, 3)} + "
+                 f"{100 * phys.noise_share:.1f} % of the source field.", 7.5)
     col.heading("What the survey cannot tell")
     for text in LIMITATIONS:
         col.para("• " + text, 7.4)
@@ -743,6 +746,12 @@ def write_report(products: Products, pdf_path: str | Path, *, png_path: str | Pa
 __all__ = ["PAGE_SIZE_IN", "SECTIONS", "ReportResult", "draw_findings_page", "draw_map_page", "write_report"]
 
 
+def _std_scale(grid) -> float | None:
+    """Site-wide factor of a borrowed (calibrated kriging) standard deviation, or None."""
+    std = None if grid.settings is None else grid.settings.std
+    return None if std is None else std.scale
+
+
 def _calibrated(grid, stats) -> bool:
     """True for the chosen method's row when its standard deviation is calibrated kriging's."""
-    return stats.method == grid.method and grid.params.get("std_scale") is not None
+    return stats.method == grid.method and _std_scale(grid) is not None

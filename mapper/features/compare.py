@@ -168,14 +168,13 @@ class Comparison:
     summary: ComparisonSummary
 
     def difference_grid(self) -> FieldGrid:
-        """The difference as a :class:`FieldGrid` (method ``difference``, no std) for export."""
+        """The difference as a :class:`FieldGrid` (method ``difference``, no std, no settings) for export."""
         return FieldGrid(
             x=self.x,
             y=self.y,
             estimate=self.difference,
             std=np.full(self.difference.shape, np.nan),
             method="difference",
-            params={"of": "after - before"},
         )
 
 

@@ -47,33 +47,31 @@ def source_records(grid: FieldGrid | None, site: Site | None = None) -> list[dic
         (a point on the source, site metres), ``well_determined`` and ``geometry`` (shapely,
         site metres).
     """
-    if grid is None:
-        return []
-    phys = grid.params.get("physics")
-    if not phys:
+    phys = None if grid is None or grid.settings is None else grid.settings.physics
+    if phys is None:
         return []
     out = []
-    rows = sorted(phys["sources"], key=lambda s: -abs(s["peak_v_per_m"]))
+    rows = sorted(phys.sources, key=lambda s: -abs(s.peak_v_per_m))
     for k, s in enumerate(rows, start=1):
-        geom = shapely.from_wkt(s["wkt"])
+        geom = shapely.from_wkt(s.wkt)
         p = geom if geom.geom_type == "Point" else geom.representative_point()
-        q, qs = s["charge_c"], s["charge_std_c"]
+        q, qs = s.charge_c, s.charge_std_c
         determined = abs(qs) <= POORLY_DETERMINED * abs(q) if q else False
         out.append({
             "source_id": f"S{k}",
-            "kind": s["kind"],
-            "asset": s["asset"],
+            "kind": s.kind,
+            "asset": s.asset,
             "charge_c": q,
             "charge_std_c": qs,
-            "height_m": s["height_m"],
-            "height_std_m": s["height_std_m"],
-            "peak_v_per_m": s["peak_v_per_m"],
-            "status": s["status"] + ("" if determined else ", poorly determined"),
-            "position_std_m": s["position_std_m"],
+            "height_m": s.height_m,
+            "height_std_m": s.height_std_m,
+            "peak_v_per_m": s.peak_v_per_m,
+            "status": s.status + ("" if determined else ", poorly determined"),
+            "position_std_m": s.position_std_m,
             "x_m": float(p.x),
             "y_m": float(p.y),
             "well_determined": bool(determined),
-            "wkt": s["wkt"],
+            "wkt": s.wkt,
         })
     return out
 

@@ -20,6 +20,21 @@ from mapper.field.physical import MIN_POSITIONS as PHYSICS_MIN_POSITIONS
 from mapper.field.physical import PhysicalModel, SourceSeed
 from mapper.field.rbf import RBF, _cv_subset
 from mapper.field.repeats import merge_repeats
+from mapper.field.settings import (
+    BorrowedStd,
+    CalibrationStats,
+    FieldSettings,
+    IDWSettings,
+    KrigingSettings,
+    LocalScale,
+    LooSplit,
+    MethodSettings,
+    PhysicsSettings,
+    RBFSettings,
+    SplitStats,
+    VariogramChoice,
+    VariogramFitSummary,
+)
 from mapper.field.uncertainty import LOCAL_NEIGHBOURS, LOCAL_PRIOR, calibrate_std, local_scale
 from mapper.field.variogram import Variogram
 from mapper.nice import nice_ceiling
@@ -127,7 +142,7 @@ def _fit(xy: np.ndarray, z: np.ndarray, values: np.ndarray, kind: str, fast: boo
 
 
 def _kriging_setup(kind, merged, variogram, neighbors, n_targets, cell, spacing, fast):
-    """Build an unfitted kriging estimator and the variogram description for it."""
+    """Build an unfitted kriging estimator and its settings (variogram and neighbourhood)."""
     n = merged.xy.shape[0]
     fit = choice = None
     if variogram is None:
@@ -139,36 +154,35 @@ def _kriging_setup(kind, merged, variogram, neighbors, n_targets, cell, spacing,
         neighbors = None if small else DEFAULT_NEIGHBORS
     cls = OrdinaryKriging if kind == "kriging" else UniversalKriging
     est = cls(variogram=variogram, neighbors=neighbors)
-    params = {
-        "variogram": variogram.to_dict(),
-        "variogram_text": variogram.describe(),
-        "variogram_fit": None if fit is None else fit.to_dict(),
-        "variogram_choice": choice,
-        "neighbors": neighbors,
-        "nugget_as_error": False,
-    }
-    if kind == "universal":
-        params["drift"] = "linear"
-    return est, params
+    settings = KrigingSettings(
+        variogram=variogram,
+        variogram_text=variogram.describe(),
+        variogram_fit=None if fit is None else VariogramFitSummary.of(fit),
+        variogram_choice=None if choice is None else VariogramChoice.from_dict(choice),
+        neighbors=neighbors,
+        nugget_as_error=False,
+        drift="linear" if kind == "universal" else None,
+    )
+    return est, settings
 
 
 def _reference_kriging(candidates, kinds, xy, z, merged, variogram, neighbors, n_targets, cell, spacing, fast, at, loo):
     """Ordinary kriging behind the calibrated standard deviation, and its leave-one-out std.
 
     The ``auto`` candidate is reused (not fitted twice); otherwise one is fitted here, exactly as
-    ``method="kriging"`` would be. Returns (estimator, params, loo_std), or a note saying why not.
+    ``method="kriging"`` would be. Returns (estimator, settings, loo_std), or a note saying why not.
     """
     if merged.xy.shape[0] < 3:
         return "fewer than 3 distinct positions leave nothing to cross-validate"
     if "kriging" in candidates:
-        est, params = candidates["kriging"]
-        return est, params, loo["kriging"][1]
+        est, settings = candidates["kriging"]
+        return est, settings, loo["kriging"][1]
     if "kriging" in kinds:  # tried and skipped; the reason already says why
         return "ordinary kriging could not be fitted"
     try:
-        est, params = _kriging_setup("kriging", merged, variogram, neighbors, n_targets, cell, spacing, fast)
+        est, settings = _kriging_setup("kriging", merged, variogram, neighbors, n_targets, cell, spacing, fast)
         est.fit(xy, z)
-        return est, params, est.loo(at)[1]
+        return est, settings, est.loo(at)[1]
     except MapperError as exc:
         return f"ordinary kriging could not be fitted ({exc.message})"
 
@@ -176,8 +190,8 @@ def _reference_kriging(candidates, kinds, xy, z, merged, variogram, neighbors, n
 def _calibrated_std(chosen, ref, chosen_loo, chosen_cv, targets, at_xy):
     """Kriging std scaled to the chosen method's leave-one-out errors (see :mod:`.uncertainty`).
 
-    Returns the std at ``targets`` (NaN when no calibration is possible), the parameters to
-    record, the chosen method's CV statistics with standardised errors filled in (or None), and
+    Returns the std at ``targets`` (NaN when no calibration is possible), where it comes from
+    (:class:`BorrowedStd`), the chosen method's CV statistics with standardised errors filled in (or None), and
     a phrase for the reason text.
     """
     nan = np.full(targets.shape[0], np.nan)
@@ -186,7 +200,7 @@ def _calibrated_std(chosen, ref, chosen_loo, chosen_cv, targets, at_xy):
     elif chosen_loo is None:
         note = "fewer than 3 distinct positions leave nothing to cross-validate"
     else:
-        kr, kparams, loo_std = ref
+        kr, ksettings, loo_std = ref
         # Relative to the readings' spread, 1e-9 is far above the rounding noise of an exact
         # reproduction (RBF on a plane: LOO errors ~1e-16 of the spread, measured) and far below
         # any real meter's resolution (our own choice).
@@ -213,21 +227,15 @@ def _calibrated_std(chosen, ref, chosen_loo, chosen_cv, targets, at_xy):
                 "about 0 and 95 % when the uncertainty is honest), set locally from the nearest "
                 f"{LOCAL_NEIGHBOURS} leave-one-out errors (factor {float(local.min()):.2g}-{float(local.max()):.2g})"
             )
-            extra = {
-                "std_source": source,
-                "std_scale": cal.scale,
-                "std_calibration": {
-                    "n": cal.n,
-                    "mean_standardized": cal.mean_standardized,
-                    "rms_standardized": cal.rms_standardized,
-                    "within_95": cal.within_95,
-                },
-                "std_reference": {
-                    "method": "kriging",
-                    **{k: kparams.get(k) for k in ("variogram", "variogram_text", "variogram_fit",
-                                                   "variogram_choice", "neighbors")},
-                },
-            }
+            borrowed = BorrowedStd(
+                source=source,
+                scale=cal.scale,
+                calibration=CalibrationStats(n=cal.n, mean_standardized=cal.mean_standardized,
+                                             rms_standardized=cal.rms_standardized, within_95=cal.within_95),
+                reference=ksettings,
+                local=LocalScale(neighbours=LOCAL_NEIGHBOURS, prior=LOCAL_PRIOR, c=c,
+                                 min_factor=float(local.min()), max_factor=float(local.max())),
+            )
             cv = None
             if chosen_cv is not None:
                 cv = dataclasses.replace(chosen_cv, mean_standardized=cal.mean_standardized,
@@ -235,27 +243,24 @@ def _calibrated_std(chosen, ref, chosen_loo, chosen_cv, targets, at_xy):
             text = (f"standard deviation from calibrated kriging: ordinary kriging's scaled locally "
                     f"(site-wide s = {cal.scale:.3g}, from the nearest {LOCAL_NEIGHBOURS} leave-one-out errors) "
                     f"so that {chosen}'s standardised leave-one-out errors have RMS 1 (by construction)")
-            extra["std_local"] = {"neighbours": LOCAL_NEIGHBOURS, "prior": LOCAL_PRIOR, "c": c,
-                                  "min": float(local.min()), "max": float(local.max())}
-            return local * ks, extra, cv, text
-    extra = {"std_source": f"none: {note}", "std_scale": None}
-    return nan, extra, None, f"no standard deviation: {note}"
+            return local * ks, borrowed, cv, text
+    return nan, BorrowedStd(source=f"none: {note}", scale=None), None, f"no standard deviation: {note}"
 
 
-def _loo_split(est: PhysicalModel, at: np.ndarray, err: np.ndarray, std: np.ndarray) -> dict:
+def _loo_split(est: PhysicalModel, at: np.ndarray, err: np.ndarray, std: np.ndarray) -> LooSplit:
     """Leave-one-out statistics for readings near the fitted sources and for the rest."""
     near = est.near_sources(at)
     out = {}
     for name, mask in (("near_sources", near), ("quiet", ~near)):
         ok = mask & (std > 0)
         zz = err[ok] / std[ok]
-        out[name] = {
-            "n": int(mask.sum()),
-            "rmse_v_per_m": float(np.sqrt(np.mean(err[mask] ** 2))) if mask.any() else None,
-            "rms_standardized": float(np.sqrt(np.mean(zz**2))) if zz.size else None,
-            "mean_standardized": float(np.mean(zz)) if zz.size else None,
-        }
-    return out
+        out[name] = SplitStats(
+            n=int(mask.sum()),
+            rmse_v_per_m=float(np.sqrt(np.mean(err[mask] ** 2))) if mask.any() else None,
+            rms_standardized=float(np.sqrt(np.mean(zz**2))) if zz.size else None,
+            mean_standardized=float(np.mean(zz)) if zz.size else None,
+        )
+    return LooSplit(**out)
 
 
 @dataclasses.dataclass(frozen=True)
@@ -338,25 +343,25 @@ def _candidate_kinds(method: str, fast: bool, n: int, height_m: float | None) ->
 
 
 def _candidates(kinds, method, fast, xy, z, merged, variogram, neighbors, nodes: _Nodes, spacing, seeds,
-                heights_m) -> tuple[dict[str, tuple[object, dict]], list[str]]:
+                heights_m) -> tuple[dict[str, tuple[object, MethodSettings]], list[str]]:
     """Step 2b: each candidate fitted (for ``auto``, one that cannot be fitted is skipped and noted)."""
     n = merged.xy.shape[0]
     notes: list[str] = []
-    candidates: dict[str, tuple[object, dict]] = {}
+    candidates: dict[str, tuple[object, MethodSettings]] = {}
     for kind in kinds:
         try:
             if kind in ("kriging", "universal"):
-                est, params = _kriging_setup(kind, merged, variogram, neighbors, nodes.targets.shape[0],
-                                             nodes.cell, spacing, fast)
+                est, settings = _kriging_setup(kind, merged, variogram, neighbors, nodes.targets.shape[0],
+                                               nodes.cell, spacing, fast)
             elif kind == "rbf":
                 nb = neighbors if neighbors is not None else (None if n <= 1000 else 64)
-                est, params = RBF(neighbors=nb), {"kernel": "thin_plate_spline", "neighbors": nb}
+                est, settings = RBF(neighbors=nb), RBFSettings(kernel="thin_plate_spline", neighbors=nb)
             elif kind == "physics":
                 est = PhysicalModel(seeds or (), bounds=nodes.bounds).fit(xy, z, heights_m)
-                params = {"physics": est.describe()}
+                settings = PhysicsSettings.from_description(est.describe())
             else:
                 nb = neighbors if neighbors is not None else 16
-                est, params = IDW(neighbors=nb), {"power": 2.0, "neighbors": nb}
+                est, settings = IDW(neighbors=nb), IDWSettings(power=2.0, neighbors=nb)
             if kind != "physics":
                 est.fit(xy, z)
         except MapperError as exc:
@@ -365,12 +370,12 @@ def _candidates(kinds, method, fast, xy, z, merged, variogram, neighbors, nodes:
             notes.append(f"{kind} skipped: {exc.message}")
             continue
         if kind == "rbf":
-            params["smoothing"] = est.smoothing_
-        candidates[kind] = (est, params)
+            settings = dataclasses.replace(settings, smoothing=est.smoothing_)
+        candidates[kind] = (est, settings)
     if not candidates and fast and method == "auto":
         # Early in a walk there are too few pairs for a variogram: the app still gets a map.
         est = IDW().fit(xy, z)
-        candidates["idw"] = (est, {"power": 2.0, "neighbors": est.neighbors})
+        candidates["idw"] = (est, IDWSettings(power=2.0, neighbors=est.neighbors))
     if not candidates:
         raise MapperError("no method could be fitted: " + "; ".join(notes), where=_WHERE)
     return candidates, notes
@@ -413,7 +418,7 @@ def _select(candidates, table: list[CVStats], method: str, fast: bool) -> tuple[
     return chosen, reason + f" (others: {others} V/m)"
 
 
-def _assemble(nodes: _Nodes, est: np.ndarray, std: np.ndarray, chosen: str, params: dict, cv, table,
+def _assemble(nodes: _Nodes, est: np.ndarray, std: np.ndarray, chosen: str, settings: FieldSettings, cv, table,
               reason: str) -> FieldGrid:
     """Step 6: the estimate and std onto the full grid (NaN outside the outline)."""
     shape = (nodes.gy.shape[0], nodes.gx.shape[0])
@@ -421,7 +426,7 @@ def _assemble(nodes: _Nodes, est: np.ndarray, std: np.ndarray, chosen: str, para
     sd = np.full(shape, np.nan)
     estimate[nodes.inside] = est
     sd[nodes.inside] = std
-    return FieldGrid(x=nodes.gx, y=nodes.gy, estimate=estimate, std=sd, method=chosen, params=params,
+    return FieldGrid(x=nodes.gx, y=nodes.gy, estimate=estimate, std=sd, method=chosen, settings=settings,
                      cv=cv, cv_table=tuple(table), reason=reason)
 
 
@@ -477,10 +482,10 @@ def build_field(
         For ``rbf`` and ``idw``, which give no standard deviation of their own, ``std`` is
         ordinary kriging's (the ``auto`` candidate, or one fitted here) scaled so that the
         method's leave-one-out standardised errors have RMS 1 (:mod:`mapper.field.uncertainty`);
-        ``params["std_source"]`` says so and ``params["std_scale"]`` holds the factor, and the
+        ``settings.std.source`` says so and ``settings.std.scale`` holds the factor, and the
         chosen method's ``cv`` carries the standardised errors after scaling (RMS 1 by
         construction; the mean stays informative). Where kriging cannot be fitted ``std`` stays
-        NaN and ``std_source`` and ``reason`` say why.
+        NaN and ``settings.std.source`` and ``reason`` say why.
 
     Notes
     -----
@@ -503,37 +508,36 @@ def build_field(
     chosen, reason = _select(candidates, table, method, fast)
     if notes:
         reason += "; " + "; ".join(notes)
-    est, params = candidates[chosen]
-    params = dict(params)
+    est, method_settings = candidates[chosen]
     if chosen == "physics":
         e, s = est.predict(nodes.targets, height_m)
-        params["prediction_height_m"] = est.height_m_ if height_m is None else height_m
-        if "physics" in loo:
-            params["loo_split"] = _loo_split(est, at, *loo["physics"])
+        method_settings = dataclasses.replace(
+            method_settings, prediction_height_m=est.height_m_ if height_m is None else height_m,
+            loo_split=_loo_split(est, at, *loo["physics"]) if "physics" in loo else None)
         if height_m is not None:
             reason += f"; field predicted at {height_m:g} m above the floor (readings at {est.height_m_:g} m)"
     else:
         e, s = est.predict(nodes.targets)
     by_kind = {c.method: c for c in table}
+    borrowed = None
     if chosen in NO_STD_METHODS:
         # calibrate: the borrowed, locally scaled kriging standard deviation
         ref = _reference_kriging(candidates, kinds, xy, z, merged, variogram, neighbors, nodes.targets.shape[0],
                                  nodes.cell, spacing, fast, at, loo)
-        s, extra, cv_chosen, text = _calibrated_std(chosen, ref, loo.get(chosen), by_kind.get(chosen),
-                                                    nodes.targets, merged.xy[at])
-        params.update(extra)
+        s, borrowed, cv_chosen, text = _calibrated_std(chosen, ref, loo.get(chosen), by_kind.get(chosen),
+                                                       nodes.targets, merged.xy[at])
         reason += "; " + text
         if cv_chosen is not None:
             by_kind[chosen] = cv_chosen
             table = [cv_chosen if c.method == chosen else c for c in table]
-    params.update(
-        {
-            "cell_m": nodes.cell,
-            "n_readings": int(xy.shape[0]),
-            "n_positions": int(merged.xy.shape[0]),
-            "repeatability_v_per_m": merged.repeatability_v_per_m,
-            "data_spacing_m": spacing,
-            "fast": bool(fast),
-        }
+    settings = FieldSettings(
+        estimator=method_settings,
+        cell_m=nodes.cell,
+        n_readings=int(xy.shape[0]),
+        n_positions=int(merged.xy.shape[0]),
+        repeatability_v_per_m=merged.repeatability_v_per_m,
+        data_spacing_m=spacing,
+        fast=bool(fast),
+        std=borrowed,
     )
-    return _assemble(nodes, e, s, chosen, params, by_kind.get(chosen), table, reason)
+    return _assemble(nodes, e, s, chosen, settings, by_kind.get(chosen), table, reason)

@@ -2,9 +2,11 @@
 
 from __future__ import annotations
 
-from dataclasses import dataclass, field
+from dataclasses import dataclass
 
 import numpy as np
+
+from mapper.field.settings import FieldSettings
 
 
 @dataclass(frozen=True)
@@ -22,7 +24,7 @@ class CVStats:
     mean_standardized, rms_standardized : float or None
         Mean and RMS of errors divided by the predicted standard deviation; about 0 and 1 when
         the uncertainty is honest. For RBF and IDW, whose standard deviation is calibrated
-        kriging's (``params["std_source"]``), the RMS is 1 by construction.
+        kriging's (``FieldGrid.settings.std``), the RMS is 1 by construction.
     """
 
     method: str
@@ -49,9 +51,12 @@ class FieldGrid:
     std : ndarray, shape (ny, nx)
         Standard deviation of the estimate, V/m; NaN outside the site or where the method gives none.
     method : str
-        ``kriging``, ``universal``, ``rbf`` or ``idw``.
-    params : dict
-        Method parameters (variogram, kernel, smoothing, neighbours ...), JSON-ready.
+        ``kriging``, ``universal``, ``rbf``, ``idw`` or ``physics`` (``difference`` for the
+        difference of two surveys, which has no settings).
+    settings : FieldSettings or None
+        What the model was built with (variogram, kernel, smoothing, neighbours, sources ...);
+        :meth:`FieldSettings.to_dict` is its JSON form. None for a grid not made by
+        :func:`~mapper.field.build.build_field`.
     cv : CVStats or None
         Leave-one-out statistics of the chosen method.
     cv_table : tuple of CVStats
@@ -65,7 +70,7 @@ class FieldGrid:
     estimate: np.ndarray
     std: np.ndarray
     method: str
-    params: dict = field(default_factory=dict)
+    settings: FieldSettings | None = None
     cv: CVStats | None = None
     cv_table: tuple[CVStats, ...] = ()
     reason: str = ""

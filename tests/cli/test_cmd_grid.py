@@ -4,7 +4,7 @@ import numpy as np
 import pytest
 
 from mapper.cli.main import main
-from mapper.field import OrdinaryKriging, Variogram, field_from_bytes
+from mapper.field import OrdinaryKriging, field_from_bytes
 from mapper.survey.store import NewReading, Survey
 
 
@@ -30,7 +30,7 @@ def test_given_variogram_is_used_as_is(filled_survey, capsys):
         summary, data, _ = s.latest_field()
         readings = s.readings()
     grid = field_from_bytes(data)
-    vg = Variogram.from_dict(grid.params["variogram"])
+    vg = grid.settings.kriging.variogram
     assert (vg.model, vg.sill, vg.range, vg.nugget) == ("exponential", 40000.0, 6.0, 100.0)
     # the stored grid is the ordinary kriging estimate with that variogram, node for node
     xy = np.array([(r.x, r.y) for r in readings])

@@ -140,6 +140,7 @@ def test_a_poorly_determined_source_gets_a_reading_beside_it_first():
     import shapely as _shapely
 
     from mapper.features.advice import advise_sampling as _advise
+    from mapper.field import FieldSettings, PhysicsSettings, SourceSummary
     from mapper.field.model import FieldGrid as _Grid
     from mapper.site.model import Site as _Site
 
@@ -149,7 +150,12 @@ def test_a_poorly_determined_source_gets_a_reading_beside_it_first():
     src = {"kind": "point", "asset": None, "status": "unlisted", "charge_c": 1e-8, "charge_std_c": 8e-9,
            "height_m": 0.3, "height_std_m": 0.2, "peak_v_per_m": 900.0, "position_std_m": 0.5,
            "wkt": "POINT (13.1 7.2)"}
-    grid = _Grid(x, y, est, np.full(est.shape, 5.0), "physics", {"physics": {"sources": [src]}})
+    physics = PhysicsSettings(sources=(SourceSummary(**src),), background_v_per_m=50.0,
+                              background_gradient_v_per_m2=(0.0, 0.0), noise_floor_v_per_m=5.0, noise_share=0.0,
+                              meter_height_m=1.0, residual="none")
+    settings = FieldSettings(estimator=physics, cell_m=0.5, n_readings=0, n_positions=0, repeatability_v_per_m=None,
+                             data_spacing_m=0.0)
+    grid = _Grid(x, y, est, np.full(est.shape, 5.0), "physics", settings)
     site = _Site("flat", _shapely.box(0, 0, 20, 10))
     out = _advise(grid, site, [], 4921.3)
     assert out and out[0].reason == "source" and "S1" in out[0].why

@@ -25,7 +25,7 @@ def test_auto_grid_inside_outline_only(scattered):
     assert {c.method for c in g.cv_table} == {"kriging", "universal", "rbf", "idw", "physics"}
     assert g.method in g.reason and "RMSE" in g.reason
     assert g.cv is not None and g.cv.method == g.method
-    json.dumps(g.params)  # JSON-ready
+    json.dumps(g.settings.to_dict())  # JSON-ready
     # Cell centres span the outline bounds.
     assert g.x[0] == pytest.approx(g.cell_m / 2) and g.x[-1] < 50
 
@@ -36,8 +36,8 @@ def test_given_variogram_is_used_as_is(scattered):
     box = shapely.box(0, 0, 50, 30)
     g = build_field(xy, z, box, method="kriging", variogram=vg, cell_m=2.5)
     assert g.method == "kriging"
-    assert g.params["variogram"] == vg.to_dict()
-    assert g.params["variogram_fit"] is None
+    assert g.settings.kriging.variogram == vg
+    assert g.settings.kriging.variogram_fit is None
     assert g.cell_m == 2.5 and len(g.x) == 20 and len(g.y) == 12
     assert np.isfinite(g.std).all()
 
@@ -57,7 +57,7 @@ def test_fast_path_grid_size():
     xy = rng.uniform([0, 0], [100, 60], size=(2000, 2))
     z = 200 + 50 * np.sin(xy[:, 0] / 10) + rng.normal(0, 5, 2000)
     g = build_field(xy, z, shapely.box(0, 0, 100, 60), fast=True)
-    assert g.method == "kriging" and g.params["fast"]
+    assert g.method == "kriging" and g.settings.fast
     assert g.estimate.size <= 6000 * 1.05
     assert "fast path" in g.reason
 
@@ -69,7 +69,8 @@ def test_storage_round_trip(scattered):
     np.testing.assert_array_equal(back.estimate, g.estimate)
     np.testing.assert_array_equal(back.std, g.std)
     np.testing.assert_array_equal(back.x, g.x)
-    assert back.params == json.loads(json.dumps(g.params))
+    assert back.settings == g.settings
+    assert back.settings.to_dict() == json.loads(json.dumps(g.settings.to_dict()))
     assert back.cv == g.cv and back.cv_table == g.cv_table and back.reason == g.reason
     with pytest.raises(MapperError, match="unreadable"):
         field_from_bytes(b"not a field")

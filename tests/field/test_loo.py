@@ -4,7 +4,8 @@ import numpy as np
 import pytest
 from scipy.interpolate import RBFInterpolator
 
-from mapper.field import IDW, RBF, OrdinaryKriging, UniversalKriging, Variogram, cv_stats
+from mapper.field import IDW, RBF, OrdinaryKriging, UniversalKriging, Variogram
+from mapper.field.crossval import cv_stats
 
 
 def _brute(make, xy, z):

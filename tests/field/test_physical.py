@@ -113,8 +113,8 @@ def test_field_at_another_height_matches_the_closed_form():
     # Tolerance: 1 % of the largest field (the fitted parameters are exact to ~1e-9; the margin
     # covers the quadrature of a 20 m line evaluated at grid nodes; our own choice).
     assert np.max(np.abs(g.estimate[inside] - truth[inside])) < 0.01 * np.max(np.abs(truth))
-    assert g.params["prediction_height_m"] == 0.7
-    json.dumps(g.params)
+    assert g.settings.physics.prediction_height_m == 0.7 == g.settings.prediction_height_m
+    json.dumps(g.settings.to_dict())
 
 
 def test_height_needs_the_physical_model_and_a_positive_height():
@@ -155,10 +155,10 @@ def test_sample_hall_physics_beats_data_only_methods_and_finds_every_source(hall
     best_data_only = min(r for k, r in rmse.items() if k != "physics")
     assert g.method == "physics"
     assert rmse["physics"] < best_data_only
-    sources = g.params["physics"]["sources"]
+    sources = g.settings.physics.sources
     # The sample's sources (sample_sites/generate.py): belt 1 overhead at 2.4 m, the
     # stretch-wrap film carriage near (42.8, 11.2), the tote stack's charged top layer.
-    assert any(s["asset"] == "belt 1" for s in sources)
-    assert any(shapely.from_wkt(s["wkt"]).distance(shapely.Point(42.8, 11.2)) < 1.0 for s in sources)
+    assert any(s.asset == "belt 1" for s in sources)
+    assert any(shapely.from_wkt(s.wkt).distance(shapely.Point(42.8, 11.2)) < 1.0 for s in sources)
     totes = shapely.box(17, 21, 21, 23)
-    assert any(shapely.from_wkt(s["wkt"]).distance(totes) < 1.0 for s in sources)
+    assert any(shapely.from_wkt(s.wkt).distance(totes) < 1.0 for s in sources)

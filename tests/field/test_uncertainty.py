@@ -31,18 +31,18 @@ def simulate(vg: Variogram, n: int, seed: int, extra: np.ndarray | None = None):
 
 def reference_kriging(g):
     """The ordinary kriging the grid's std was calibrated on, rebuilt from its recorded parameters."""
-    ref = g.params["std_reference"]
-    assert ref["method"] == "kriging"
-    return OrdinaryKriging(variogram=Variogram.from_dict(ref["variogram"]), neighbors=ref["neighbors"])
+    ref = g.settings.std.reference
+    assert ref.drift is None  # ordinary kriging
+    return OrdinaryKriging(variogram=ref.variogram, neighbors=ref.neighbors)
 
 
 def test_calibrated_rbf_std_on_a_simulated_field():
     xy, z = simulate(TRUTH, 150, seed=3)
     g = build_field(xy, z, BOX, method="rbf", cell_m=2.5)
-    s = g.params["std_scale"]
+    s = g.settings.std.scale
     assert np.isfinite(s) and s > 0
     assert "calibrated kriging" in g.reason
-    assert g.params["std_source"].startswith("ordinary kriging standard deviation scaled by s = ")
+    assert g.settings.std.source.startswith("ordinary kriging standard deviation scaled by s = ")
     kr = reference_kriging(g).fit(xy, z)
 
     # Standardized LOO errors of RBF, with RBF's LOO errors from brute-force refits of scipy's
@@ -52,7 +52,7 @@ def test_calibrated_rbf_std_on_a_simulated_field():
     brute = []
     for i in range(len(z)):
         keep = np.arange(len(z)) != i
-        f = RBFInterpolator(xy[keep], z[keep], kernel="thin_plate_spline", smoothing=g.params["smoothing"])
+        f = RBFInterpolator(xy[keep], z[keep], kernel="thin_plate_spline", smoothing=g.settings.rbf.smoothing)
         brute.append(f(xy[i:i + 1])[0] - z[i])
     _, sd_loo = kr.loo()
     zs = np.array(brute) / (s * sd_loo)
@@ -65,7 +65,7 @@ def test_calibrated_rbf_std_on_a_simulated_field():
     c = np.sqrt(np.mean(zl**2))
     zl /= c
     assert g.cv.mean_standardized == pytest.approx(np.mean(zl), abs=1e-6)
-    assert g.params["std_calibration"]["n"] == len(z)
+    assert g.settings.std.calibration.n == len(z)
 
     # The grid std is the kriging std times the local scale (same factorisation: rounding only).
     mx, my = np.meshgrid(g.x, g.y)
@@ -87,8 +87,8 @@ def test_idw_and_rbf_carry_finite_std_inside_outline(scattered, method):
     assert g.method == method
     assert np.isfinite(g.std[g.inside]).all() and (g.std[g.inside] > 0).all()
     assert np.isnan(g.std[~g.inside]).all()
-    assert method in g.params["std_source"] and "RMS 1" in g.params["std_source"]
-    assert 0 < g.params["std_scale"] < np.inf
+    assert method in g.settings.std.source and "RMS 1" in g.settings.std.source
+    assert 0 < g.settings.std.scale < np.inf
     assert g.cv.rms_standardized == pytest.approx(1.0, rel=1e-12)  # by construction
     assert abs(g.cv.mean_standardized) < 1.0  # finite, on the scale of standardized errors
 
@@ -119,11 +119,11 @@ def test_zero_nugget_std_at_a_reading_is_zero_but_the_scale_is_finite():
     # on the cell centre (11.25, 13.75) of a 2.5 m grid.
     xy, z = simulate(TRUTH, 120, seed=5, extra=np.array([[11.25, 13.75]]))
     g = build_field(xy, z, BOX, method="idw", cell_m=2.5, variogram=TRUTH)
-    assert g.params["std_reference"]["variogram"] == TRUTH.to_dict()  # a given variogram is used as is
-    assert 0 < g.params["std_scale"] < np.inf
+    assert g.settings.std.reference.variogram == TRUTH  # a given variogram is used as is
+    assert 0 < g.settings.std.scale < np.inf
     j, i = np.argmin(np.abs(g.y - 13.75)), np.argmin(np.abs(g.x - 11.25))
     # Zero up to the rounding of the kriging variance (1e-6 of the sill's standard deviation).
-    assert g.std[j, i] == pytest.approx(0.0, abs=1e-6 * g.params["std_scale"] * np.sqrt(TRUTH.sill))
+    assert g.std[j, i] == pytest.approx(0.0, abs=1e-6 * g.settings.std.scale * np.sqrt(TRUTH.sill))
     others = g.inside.copy()
     others[j, i] = False
     assert np.isfinite(g.std[others]).all() and (g.std[others] > 0).all()
@@ -135,7 +135,7 @@ def test_too_few_pairs_leaves_std_nan_and_says_why():
     g = build_field(xy, np.arange(6.0), shapely.box(0, 0, 10, 10), fast=True)
     assert g.method == "idw"
     assert np.isnan(g.std).all()
-    assert g.params["std_source"].startswith("none: ") and g.params["std_scale"] is None
+    assert g.settings.std.source.startswith("none: ") and g.settings.std.scale is None
     assert "no standard deviation" in g.reason
 
 
@@ -149,7 +149,7 @@ def test_exact_reproduction_leaves_std_nan():
     g = build_field(xy, z, BOX, method="rbf", cell_m=5.0,
                     variogram=Variogram("exponential", sill=10.0, range=20.0))
     assert np.isnan(g.std).all()
-    assert "all zero" in g.params["std_source"]
+    assert "all zero" in g.settings.std.source
 
 
 def test_calibrate_std_definitions():
@@ -187,8 +187,8 @@ def test_variogram_model_chosen_by_cross_validation_is_the_simulated_one(truth, 
     # found it 1/8 (exponential) and 5/8 (gaussian) times.
     xy, z = simulate(truth, 300, seed)
     g = build_field(xy, z, BOX, method="kriging", cell_m=5.0)
-    choice = g.params["variogram_choice"]
-    assert g.params["variogram"]["model"] == truth.model
-    assert "leave-one-out" in choice["by"]
-    rmse = choice["loo_rmse_v_per_m"]
+    choice = g.settings.kriging.variogram_choice
+    assert g.settings.kriging.variogram.model == truth.model
+    assert "leave-one-out" in choice.by
+    rmse = choice.loo_rmse_v_per_m
     assert rmse[truth.model] == min(r for r in rmse.values() if r is not None)

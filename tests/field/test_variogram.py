@@ -7,7 +7,9 @@ import numpy as np
 import pytest
 
 from mapper.errors import MapperError
-from mapper.field import Variogram, empirical_variogram, fit_model, fit_variogram
+from mapper.field import Variogram, fit_variogram
+from mapper.field.empirical import empirical_variogram
+from mapper.field.fit import fit_model
 
 
 def test_models_at_their_range():
