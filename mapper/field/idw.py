@@ -8,6 +8,7 @@ from scipy.spatial import cKDTree
 from mapper.errors import MapperError
 from mapper.field import checks
 from mapper.field.estimator import check_fitted
+from mapper.field.neighbourhood import nearest_others
 from mapper.field.repeats import MERGE_TOL_M, merge_repeats
 
 _BATCH = 65536
@@ -49,13 +50,11 @@ class IDW:
         return self
 
     def _weights_at(self, t: np.ndarray, k: int, exclude: np.ndarray | None = None):
-        d, idx = self.tree_.query(t, k=k)
-        d, idx = d.reshape(t.shape[0], -1), idx.reshape(t.shape[0], -1)
-        if exclude is not None:
-            keep = idx != exclude[:, None]
-            keep[keep.all(axis=1), -1] = False
-            d = d[keep].reshape(t.shape[0], k - 1)
-            idx = idx[keep].reshape(t.shape[0], k - 1)
+        if exclude is None:
+            d, idx = self.tree_.query(t, k=k)
+            d, idx = d.reshape(t.shape[0], -1), idx.reshape(t.shape[0], -1)
+        else:
+            d, idx = nearest_others(self.tree_, exclude, k - 1)
         with np.errstate(divide="ignore"):
             w = 1.0 / d**self.power
         hit = ~np.isfinite(w)

@@ -34,7 +34,7 @@ from mapper.field.linalg import (
     lower_solve_inplace,
     solve_batched,
 )
-from mapper.field.neighbourhood import map_nearest_sets
+from mapper.field.neighbourhood import map_nearest_sets, nearest_others
 from mapper.field.repeats import MERGE_TOL_M, MergedReadings, merge_repeats
 from mapper.field.variogram import Variogram
 
@@ -156,12 +156,7 @@ class _Kriging:
                 self.u_, self.g_, self.beta_ = u, g, beta
                 self.r_ = v - u @ beta
                 return
-        n, p = f.shape
-        a = np.zeros((n + p, n + p))
-        a[:n, :n] = vg(_pairwise(xt))
-        a[:n, n:] = f
-        a[n:, :n] = f.T
-        self.lu_ = sla.lu_factor(a, overwrite_a=True, check_finite=False)
+        self.lu_ = sla.lu_factor(bordered_system(vg(_pairwise(xt)), f), overwrite_a=True, check_finite=False)
 
     # ------------------------------------------------------------------------------ predicting
     def predict(self, targets) -> tuple[np.ndarray, np.ndarray]:
@@ -208,12 +203,7 @@ class _Kriging:
         t = self.variogram_.transform(checks.points(targets, f"{type(self).__name__}.weights", "targets"))
         xt = self.xt_
         n = xt.shape[0]
-        f = self._drift(xt, self.centre_, self.scale_)
-        p = f.shape[1]
-        a = np.zeros((n + p, n + p))
-        a[:n, :n] = self.variogram_(_pairwise(xt))
-        a[:n, n:] = f
-        a[n:, :n] = f.T
+        a = bordered_system(self.variogram_(_pairwise(xt)), self._drift(xt, self.centre_, self.scale_))
         rhs = np.vstack([self._rhs_gamma(_cross(xt, t)), self._drift(t, self.centre_, self.scale_).T])
         return np.linalg.solve(a, rhs)[:n].T
 
@@ -288,16 +278,12 @@ class _Kriging:
     def _local_matrices(self, idx: np.ndarray, centre: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
         """Bordered variogram systems (B, k+p, k+p) for neighbourhoods ``idx`` (B, k)."""
         pts = self.xt_[idx]  # (B, k, 2)
-        k, p = idx.shape[1], self._n_drift
+        p = self._n_drift
         d = _within(pts)
         scale = self.scale_
         if p > 1:  # drift columns scaled by the neighbourhood size, for conditioning only
             scale = np.maximum(np.max(np.abs(pts - centre[:, None, :]), axis=(1, 2)), 1e-12)[:, None, None]
-        f = self._drift(pts, centre[:, None, :], scale)
-        a = np.zeros((idx.shape[0], k + p, k + p))
-        a[:, :k, :k] = self.variogram_.semivariance_into(d)
-        a[:, :k, k:] = f
-        a[:, k:, :k] = np.swapaxes(f, 1, 2)
+        a = bordered_system(self.variogram_.semivariance_into(d), self._drift(pts, centre[:, None, :], scale))
         return a, pts, scale
 
     def _predict_local(self, tt: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
@@ -476,6 +462,28 @@ class _Kriging:
         return _loo_local(self, ids)
 
 
+def bordered_system(gamma: np.ndarray, f: np.ndarray) -> np.ndarray:
+    """The kriging system in variogram form, ``[[Gamma, F], [F', 0]]``, for one or a stack.
+
+    Parameters
+    ----------
+    gamma : ndarray, shape (..., n, n)
+        Semivariances among the data, (V/m)^2.
+    f : ndarray, shape (..., n, p)
+        Drift basis at the data (a column of ones for ordinary kriging).
+
+    Returns
+    -------
+    ndarray, shape (..., n + p, n + p)
+    """
+    n, p = f.shape[-2:]
+    a = np.zeros(gamma.shape[:-2] + (n + p, n + p))
+    a[..., :n, :n] = gamma
+    a[..., :n, n:] = f
+    a[..., n:, :n] = np.swapaxes(f, -1, -2)
+    return a
+
+
 def _core_parts(cc: np.ndarray, bcol: np.ndarray, kc: np.ndarray, c: int):
     """Per square, eliminate the ``c`` core candidates shared by all its sets.
 
@@ -576,13 +584,7 @@ def _loo_global(kr: _Kriging) -> tuple[np.ndarray, np.ndarray]:
             diag = cinv_diag - np.einsum("ij,ji->i", cf, gi_cf)
             bz = cz - cf @ (gi_cf @ z)
             return -bz / diag, np.sqrt(np.maximum(1.0 / diag, 0.0))
-    h = _pairwise(xt)
-    p = f.shape[1]
-    a = np.zeros((n + p, n + p))
-    a[:n, :n] = vg(h)
-    a[:n, n:] = f
-    a[n:, :n] = f.T
-    ainv = np.linalg.inv(a)
+    ainv = np.linalg.inv(bordered_system(vg(_pairwise(xt)), f))
     top = ainv[:n, :n]
     diag = np.diag(top)
     # In variogram form the top-left block is minus the covariance-form B.
@@ -597,11 +599,7 @@ def _loo_local(kr: _Kriging, ids: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
         sl = slice(s, min(n, s + _LOCAL_BATCH))
         own = ids[sl]
         t = xt[own]
-        _, idx = kr.tree_.query(t, k=k + 1)
-        # Drop the point itself (normally the first column; duplicates were merged).
-        keep = idx != own[:, None]
-        keep[keep.all(axis=1), -1] = False  # self not among them (ties): drop the farthest
-        idx = idx[keep].reshape(idx.shape[0], k)
+        _, idx = nearest_others(kr.tree_, own, k)
         a, pts, _ = kr._local_matrices(idx, t)
         h = _to_point(pts, t)
         rhs = np.concatenate([kr.variogram_(h), kr._drift(t, t, 1.0)], axis=1)

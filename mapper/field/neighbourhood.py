@@ -189,6 +189,38 @@ def nearest_sets(data: np.ndarray, targets: np.ndarray, k: int, tree: cKDTree | 
     return members, set_of
 
 
+def nearest_others(tree: cKDTree, ids: np.ndarray, k: int) -> tuple[np.ndarray, np.ndarray]:
+    """The k nearest data of data ``ids`` themselves, each datum left out of its own list.
+
+    The leave-one-out of every moving-neighbourhood method: position ``i`` predicted from its k
+    nearest *other* positions (the data are merged repeats, so no other datum sits at distance 0
+    unless two coincide; if the datum itself is not among the k + 1 found, because of ties, the
+    farthest of them is dropped instead).
+
+    Parameters
+    ----------
+    tree : cKDTree
+        Tree of the data positions, metres.
+    ids : ndarray, shape (m,), int
+        Data left out in turn.
+    k : int
+        Neighbours each.
+
+    Returns
+    -------
+    dist : ndarray, shape (m, k)
+        Distances, metres, nearest first.
+    idx : ndarray, shape (m, k), int64
+        Data indices.
+    """
+    ids = np.asarray(ids, dtype=np.int64)
+    d, idx = tree.query(tree.data[ids], k=k + 1)
+    d, idx = d.reshape(ids.shape[0], k + 1), idx.reshape(ids.shape[0], k + 1)
+    keep = idx != ids[:, None]
+    keep[keep.all(axis=1), -1] = False
+    return d[keep].reshape(ids.shape[0], k), idx[keep].reshape(ids.shape[0], k)
+
+
 def _typical_kth_distance(data: np.ndarray, k: int) -> float:
     """Distance to the k-th nearest datum for data spread evenly over their bounding box, metres."""
     lo, hi = data.min(axis=0), data.max(axis=0)

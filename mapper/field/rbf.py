@@ -16,6 +16,7 @@ from mapper.errors import MapperError
 from mapper.field import checks
 from mapper.field.estimator import check_fitted
 from mapper.field.linalg import solve_batched
+from mapper.field.neighbourhood import nearest_others
 from mapper.field.repeats import MERGE_TOL_M, merge_repeats
 
 #: Scale-free kernels (no shape parameter) and the polynomial degree scipy requires for each.
@@ -155,10 +156,7 @@ class RBF:
         for s in range(0, at.shape[0], _LOCAL_BATCH):
             ids = at[s:s + _LOCAL_BATCH]
             t = xy[ids]
-            _, idx = self.tree_.query(t, k=k + 1)
-            keep = idx != ids[:, None]
-            keep[keep.all(axis=1), -1] = False  # self not among them (ties): drop the farthest
-            idx = idx[keep].reshape(ids.shape[0], k)
+            _, idx = nearest_others(self.tree_, ids, k)
             pts = xy[idx]
             # scipy shifts and scales each neighbourhood for the polynomial; the solution is the same.
             centre = pts.mean(axis=1, keepdims=True)
