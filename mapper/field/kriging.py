@@ -43,6 +43,7 @@ DRIFTS = ("linear",)
 _CHUNK_ELEMENTS = 2**22  # doubles per n x chunk block in the global solve (32 MB)
 _LOCAL_BATCH = 2048  # targets (or squares) per batch in the moving neighbourhood
 _SET_BATCH_ELEMENTS = 2**17  # doubles per batch of bordered set matrices (1 MB, to stay in cache)
+_SETS_PER_SQUARE = 3  # below this many distinct sets a square, sets are factored whole
 _HUGE = 1e200  # trailing diagonal of the bordered factorisation (never enters the used block)
 
 
@@ -329,6 +330,9 @@ class _Kriging:
         """Estimate and variance of one block of targets grouped by neighbourhood."""
         vg, p = self.variogram_, self._n_drift
         nsq, cmax = block.cand.shape
+        if block.n_sets < _SETS_PER_SQUARE * nsq:  # few sets a square: eliminating a core does not pay
+            self._solve_block_direct(block, tt, est, var)
+            return
         pad = block.cand < 0
         cpos = self.xt_[block.cand]
         cpos[pad] = np.inf
@@ -362,26 +366,57 @@ class _Kriging:
             except np.linalg.LinAlgError:  # a core not numerically positive definite: no shared block
                 c = 0
                 parts = _core_parts(cc[sqs], bcol[sqs], kc[sqs], 0)
-            width = np.left_shift(1, np.ceil(np.log2(block.count[ids_c])).astype(np.int64))
-            size0 = self.neighbors - int(c) + p + 1
-            for w in np.unique(width):
-                ids = ids_c[width == w]
-                step = max(1, _SET_BATCH_ELEMENTS // ((size0 + int(w)) ** 2))
-                for s in range(0, ids.shape[0], step):
-                    self._solve_sets(block, ids[s:s + step], int(w), int(c), local, parts, scale, tt, est, var)
+            for ids, w in _batches(block.count, ids_c, self.neighbors - int(c) + p + 1):
+                self._solve_sets(block, ids, w, int(c), local, parts, scale, tt, est, var)
+
+    def _solve_block_direct(self, block, tt: np.ndarray, est: np.ndarray, var: np.ndarray) -> None:
+        """Each set's system built from its own members (no shared core): for sparse targets."""
+        vg, k, p = self.variogram_, self.neighbors, self._n_drift
+        dist = block.dist()  # (rows, k), by row
+        for ids, w in _batches(block.count, np.arange(block.n_sets), k + p + 1):
+            nb = ids.shape[0]
+            members = block.members[ids]
+            pts = self.xt_[members]
+            rows, valid = _set_rows(block, ids, w)
+            size = k + p + 1 + w
+            a = np.zeros((nb, size, size))
+            _within_into(pts, a[:, :k, :k])
+            cov = vg.covariance_into(a[:, :k, :k], with_nugget=False)
+            if cov.base is not a:  # models computed out of place
+                a[:, :k, :k] = cov
+            diag = np.arange(k)
+            a[:, diag, diag] = vg.total_sill
+            centre = block.centre[block.square[ids]]
+            scale = 1.0
+            if p > 1:  # drift columns scaled by the neighbourhood's reach, for conditioning only
+                scale = np.maximum(np.max(np.abs(pts - centre[:, None, :]), axis=(1, 2)), 1e-12)[:, None, None]
+            a[:, k:k + p, :k] = np.swapaxes(self._drift(pts, centre[:, None, :], scale), 1, 2)
+            a[:, k + p, :k] = self.values_[members]
+            h = dist[rows]  # (nb, w, k)
+            on_data = (h == 0.0) if (vg.nugget > 0 and not self.nugget_as_error) else None
+            kt = vg.covariance_into(h, with_nugget=False)
+            if on_data is not None:
+                kt[on_data] += vg.nugget
+            a[:, k + p + 1:, :k] = kt
+            tail = np.arange(k, size)
+            a[:, tail, tail] = _HUGE
+            try:
+                low = np.linalg.cholesky(a)
+            except np.linalg.LinAlgError:  # some set's covariance is not numerically positive definite
+                self._bordered_sets(block, ids, rows, valid, tt, est, var)
+                continue
+            self._combine(low[:, k:k + p, :k], low[:, k + p, :k], low[:, k + p + 1:, :k], block.target[rows],
+                          valid, centre, scale, tt, est, var)
 
     def _solve_sets(self, block, ids, w, c, local, parts, scale, tt, est, var) -> None:
         """The targets of sets ``ids`` of ``block`` (each with at most ``w`` targets, ``c`` core)."""
-        vg, k, p = self.variogram_, self.neighbors, self._n_drift
+        k, p = self.neighbors, self._n_drift
         schur, bred, kred, u, v = parts
         nb, kr = ids.shape[0], k - c
         sq_block = block.square[ids]
         sq = local[sq_block]
         rest = block.colpos[ids, c:] - c  # (nb, kr): positions among the square's other candidates
-        count = block.count[ids]
-        slot = np.arange(w)
-        valid = slot[None, :] < count[:, None]
-        rows = block.set_rows[block.start[ids, None] + np.minimum(slot[None, :], count[:, None] - 1)]  # (nb, w)
+        rows, valid = _set_rows(block, ids, w)
         rsq, rsl = local[block.row_square[rows]], block.row_slot[rows]
         size = kr + p + 1 + w
         a = np.zeros((nb, size, size))
@@ -393,16 +428,20 @@ class _Kriging:
         try:
             low = np.linalg.cholesky(a)
         except np.linalg.LinAlgError:  # some set's covariance is not numerically positive definite
-            for i in range(nb):
-                t_i = block.target[rows[i, valid[i]]]
-                est[t_i], var[t_i] = self._bordered_at(block.members[ids[i]], tt[t_i])
+            self._bordered_sets(block, ids, rows, valid, tt, est, var)
             return
         # Core and rest parts stacked: G = L^-1 F (nb, p, k), g = L^-1 z (nb, k), y = L^-1 c (nb, w, k).
         us = np.swapaxes(u[sq], 1, 2)  # (nb, p + 1, c)
         g = np.concatenate([us[:, :p], low[:, kr:kr + p, :kr]], axis=2)
         gz = np.concatenate([us[:, p], low[:, kr + p, :kr]], axis=1)
         y = np.concatenate([v[rsq, rsl], low[:, kr + p + 1:, :kr]], axis=2)
-        tgt = block.target[rows]  # (nb, w)
+        sc = scale if np.isscalar(scale) else scale[sq_block]
+        self._combine(g, gz, y, block.target[rows], valid, block.centre[sq_block], sc, tt, est, var)
+
+    def _combine(self, g, gz, y, tgt, valid, centre, scale, tt, est, var) -> None:
+        """Estimates and variances from ``G = L^-1 F`` (nb, p, k), ``g = L^-1 z`` (nb, k) and the
+        targets' ``y = L^-1 c`` (nb, w, k), written at targets ``tgt[valid]``."""
+        vg, p = self.variogram_, self._n_drift
         c00 = vg.sill if self.nugget_as_error else vg.total_sill
         if p == 1:  # ordinary kriging: G is one row, F' C^-1 F a number
             g1 = g[:, 0]
@@ -411,20 +450,25 @@ class _Kriging:
             r = gz - g1 * beta[:, None]
             e = beta[:, None] + np.matmul(y, r[:, :, None])[:, :, 0]
             d = 1.0 - np.matmul(y, g1[:, :, None])[:, :, 0]  # (nb, w)
-            v_ = c00 - np.einsum("bwk,bwk->bw", y, y) + d * d / gram[:, None]
+            v = c00 - np.einsum("bwk,bwk->bw", y, y) + d * d / gram[:, None]
         else:
             gt = np.swapaxes(g, 1, 2)
             gram = np.matmul(g, gt)  # F' C^-1 F, (nb, p, p)
             beta = np.linalg.solve(gram, np.matmul(g, gz[:, :, None]))  # (nb, p, 1)
             r = gz - np.matmul(gt, beta)[:, :, 0]
-            sc = scale if np.isscalar(scale) else scale[sq_block]
-            f0 = self._drift(tt[tgt], block.centre[sq_block][:, None, :], sc)  # (nb, w, p)
+            f0 = self._drift(tt[tgt], centre[:, None, :], scale)  # (nb, w, p)
             e = np.matmul(f0, beta)[:, :, 0] + np.matmul(y, r[:, :, None])[:, :, 0]
             d = f0 - np.matmul(y, gt)  # (nb, w, p)
             gi_d = np.linalg.solve(gram, np.swapaxes(d, 1, 2))  # (nb, p, w)
-            v_ = c00 - np.einsum("bwk,bwk->bw", y, y) + np.einsum("bwp,bpw->bw", d, gi_d)
+            v = c00 - np.einsum("bwk,bwk->bw", y, y) + np.einsum("bwp,bpw->bw", d, gi_d)
         est[tgt[valid]] = e[valid]
-        var[tgt[valid]] = v_[valid]
+        var[tgt[valid]] = v[valid]
+
+    def _bordered_sets(self, block, ids, rows, valid, tt, est, var) -> None:
+        """Sets whose covariance is not numerically positive definite: the bordered solve, one by one."""
+        for i in range(ids.shape[0]):
+            t_i = block.target[rows[i, valid[i]]]
+            est[t_i], var[t_i] = self._bordered_at(block.members[ids[i]], tt[t_i])
 
     def _bordered_at(self, members: np.ndarray, tt: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
         """Estimate and variance at targets ``tt`` from one neighbourhood, by the bordered solve."""
@@ -460,6 +504,26 @@ class _Kriging:
             err, std = _loo_global(self)
             return err[ids], std[ids]
         return _loo_local(self, ids)
+
+
+def _batches(count: np.ndarray, ids: np.ndarray, size0: int):
+    """Sets ``ids`` in batches of equal target slots ``w`` (a power of 2 at least each set's target
+    count), each batch's bordered matrices of side ``size0 + w`` within the batch size limit."""
+    width = np.left_shift(1, np.ceil(np.log2(count[ids])).astype(np.int64))
+    for w in np.unique(width):
+        sel = ids[width == w]
+        step = max(1, _SET_BATCH_ELEMENTS // ((size0 + int(w)) ** 2))
+        for s in range(0, sel.shape[0], step):
+            yield sel[s:s + step], int(w)
+
+
+def _set_rows(block, ids: np.ndarray, w: int) -> tuple[np.ndarray, np.ndarray]:
+    """Rows of sets ``ids`` in ``w`` slots each (padded by repeating the last) and which are real."""
+    count = block.count[ids]
+    slot = np.arange(w)
+    valid = slot[None, :] < count[:, None]
+    rows = block.set_rows[block.start[ids, None] + np.minimum(slot[None, :], count[:, None] - 1)]
+    return rows, valid
 
 
 def bordered_system(gamma: np.ndarray, f: np.ndarray) -> np.ndarray:

@@ -30,6 +30,7 @@ import numpy as np
 from scipy.spatial import cKDTree
 
 _BLOCK_ELEMENTS = 2**21  # padded target x candidate distances per block (16 MB)
+_SPARSE_BLOCK = 2**15  # targets per block when each target is its own square
 _HASH = np.random.default_rng(20261203).integers(1, 2**63, size=64, dtype=np.uint64) | np.uint64(1)
 T = TypeVar("T")
 
@@ -155,12 +156,22 @@ def map_nearest_sets(
     targets = np.ascontiguousarray(targets, dtype=float)
     if targets.shape[0] == 0:
         return []
-    squares = _Squares.of(data, targets, k, cKDTree(data) if tree is None else tree, side)
+    tree = cKDTree(data) if tree is None else tree
+    side = max(_typical_kth_distance(data, k) / 5.0, 1e-6) if side is None else float(side)
+    if not _worth_squares(targets, side):
+        # Targets sparser than the squares (a coarse grid): each is its own square, and its k
+        # nearest found by the tree are its candidates, all of them members.
+        blocks = [(s, min(targets.shape[0], s + _SPARSE_BLOCK)) for s in range(0, targets.shape[0], _SPARSE_BLOCK)]
 
-    def job(bounds: tuple[int, int]) -> T:
-        return consume(squares.sets(*bounds))
+        def job(bounds: tuple[int, int]) -> T:
+            return consume(_single_sets(tree, targets, k, *bounds))
+    else:
+        squares = _Squares.of(data, targets, k, tree, side)
 
-    blocks = squares.blocks()
+        def job(bounds: tuple[int, int]) -> T:
+            return consume(squares.sets(*bounds))
+
+        blocks = squares.blocks()
     if len(blocks) == 1:
         return [job(blocks[0])]
     with ThreadPoolExecutor(max_workers=worker_count()) as pool:
@@ -221,6 +232,27 @@ def nearest_others(tree: cKDTree, ids: np.ndarray, k: int) -> tuple[np.ndarray, 
     return d[keep].reshape(ids.shape[0], k), idx[keep].reshape(ids.shape[0], k)
 
 
+def _worth_squares(targets: np.ndarray, side: float) -> bool:
+    """Whether squares of ``side`` hold enough targets on average (at least 4) to share work."""
+    origin = targets.min(axis=0)
+    key = np.floor((targets - origin) / side).astype(np.int64)
+    flat = key[:, 0] * (int(key[:, 1].max()) + 1) + key[:, 1]
+    return targets.shape[0] >= 4 * np.unique(flat).shape[0]
+
+
+def _single_sets(tree: cKDTree, targets: np.ndarray, k: int, s: int, e: int) -> NeighbourSets:
+    """Targets ``s`` to ``e - 1`` each in a square of its own, its k nearest its candidates."""
+    m = e - s
+    d, idx = tree.query(targets[s:e], k=k)
+    d, idx = d.reshape(m, k), idx.reshape(m, k)
+    one = np.arange(m)
+    return NeighbourSets(
+        target=one + s, row_square=one, row_slot=np.zeros(m, np.int64), set_rows=one, start=np.arange(m + 1),
+        members=idx, square=one, colpos=np.broadcast_to(np.arange(k), (m, k)), cand=idx, centre=targets[s:e],
+        cand_dist=d, on_datum=np.where(d[:, 0] == 0.0, 0, -1), core=np.full(m, k),
+    )
+
+
 def _typical_kth_distance(data: np.ndarray, k: int) -> float:
     """Distance to the k-th nearest datum for data spread evenly over their bounding box, metres."""
     lo, hi = data.min(axis=0), data.max(axis=0)
@@ -244,8 +276,7 @@ class _Squares:
     k: int
 
     @classmethod
-    def of(cls, data, targets, k, tree, side) -> _Squares:
-        side = max(_typical_kth_distance(data, k) / 5.0, 1e-6) if side is None else float(side)
+    def of(cls, data, targets, k, tree, side: float) -> _Squares:
         origin = targets.min(axis=0)
         key = np.floor((targets - origin) / side).astype(np.int64)
         flat = key[:, 0] * (int(key[:, 1].max()) + 1) + key[:, 1]
