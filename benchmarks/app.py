@@ -28,7 +28,8 @@ Figures:
 * map shown: from opening the survey file to the first frame written after the first live
   result (with a field grid) reached the map.
 * refit: the worker's :func:`mapper.workflow.live_products` (field engine fast path + hotspots +
-  suggestions) on 2 000 readings; redraw: applying the result on the UI thread.
+  suggestions) on 2 000 readings, made ready to draw (:func:`mapper.app.map_data.prepare_live_map`);
+  redraw: applying the result on the UI thread.
 
 Readings are invented: a charged conveyor modelled as a Gaussian ridge of 6 kV/m plus white
 noise of 50 V/m, at random positions inside the hall.
@@ -52,6 +53,7 @@ sys.path.insert(0, str(ROOT))
 
 from mapper import workflow as live  # noqa: E402
 from mapper.app.main_screen import MainScreen  # noqa: E402
+from mapper.app.map_data import prepare_live_map  # noqa: E402
 from mapper.app.walk_app import WalkApp  # noqa: E402
 from mapper.survey.create import create_survey  # noqa: E402
 from mapper.survey.store import NewReading, Survey  # noqa: E402
@@ -249,10 +251,11 @@ async def refit_redraw(path: Path, repeats: int) -> dict:
         for _ in range(repeats):
             t0 = time.perf_counter()
             result = live.live_products(readings, s.site, s.threshold_v_per_m, s.points)
+            ready = prepare_live_map(result, readings, s.sign_convention, s.plan.spacing_m)
             refit_s.append(time.perf_counter() - t0)
             main.live = None
             t0 = time.perf_counter()
-            main._apply_live(result)
+            main._apply_live(ready)
             redraw_s.append(time.perf_counter() - t0)
         # And through the real worker: from start to the map showing the new result.
         worker_s = []
