@@ -8,7 +8,7 @@ import numpy as np
 from rich.color import Color
 from rich.style import Style
 from rich.text import Text
-from textual.reactive import reactive
+from textual.reactive import reactive, var
 from textual.widgets import Static
 
 from mapper.app.palette import FEATURE_COLOURS, sequential
@@ -114,7 +114,7 @@ class LegendKey:
 class Legend(Static):
     """The legend beside the map: its title, the colours of the layer drawn and the symbols."""
 
-    key: reactive[LegendKey | None] = reactive(None)
+    key: reactive[LegendKey | None] = var(None)
 
     def watch_key(self, key: LegendKey | None) -> None:
         if key is None:

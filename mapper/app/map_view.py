@@ -11,7 +11,7 @@ from rich.style import Style
 from textual import events
 from textual.geometry import Region
 from textual.message import Message
-from textual.reactive import reactive
+from textual.reactive import reactive, var
 from textual.strip import Strip
 from textual.widget import Widget
 
@@ -72,8 +72,9 @@ class MapView(Widget):
         The site drawn.
     """
 
-    #: What the map shows; each new scene is drawn (rows that did not change keep their cells).
-    scene: reactive[MapScene | None] = reactive(None, init=False)
+    #: What the map shows; each new scene is drawn, and only the rows that changed are refreshed
+    #: (a ``var``: a plain reactive would repaint the whole map on every change).
+    scene: reactive[MapScene | None] = var(None, init=False)
 
     class Clicked(Message):
         """The map was clicked at a site position (metres)."""

@@ -2,7 +2,8 @@
 
 Each widget holds what it shows in ``reactive`` attributes (small frozen summaries from the walk,
 :mod:`mapper.app.session`) and redraws in its ``watch_*`` method when they change; setting the
-same value again draws nothing. The screen only hands them new data.
+same value again draws nothing. The screen only hands them new data. The attributes are
+Textual's ``var`` reactives: the watcher draws, so a change does not also repaint the whole widget.
 """
 
 from __future__ import annotations
@@ -13,7 +14,7 @@ from dataclasses import dataclass
 from rich.text import Text
 from textual.app import ComposeResult
 from textual.containers import Horizontal, Vertical
-from textual.reactive import reactive
+from textual.reactive import reactive, var
 from textual.widgets import Label, ProgressBar, Static
 
 from mapper.app.entry_line import EntryLine
@@ -47,7 +48,7 @@ class TitleLine(Static):
     """Survey name, file, display unit and sign convention."""
 
     #: ``(survey name, file name, display unit, sign convention)``.
-    heading: reactive[tuple[str, str, str, str] | None] = reactive(None)
+    heading: reactive[tuple[str, str, str, str] | None] = var(None)
 
     def watch_heading(self, heading: tuple[str, str, str, str] | None) -> None:
         if heading is None:
@@ -68,9 +69,9 @@ class PointPanel(Static):
     """
 
     #: Where the surveyor stands and what was read there.
-    place: reactive[PlaceSummary | None] = reactive(None)
+    place: reactive[PlaceSummary | None] = var(None)
     #: Display unit of the spread.
-    unit: reactive[str] = reactive("V/m")
+    unit: reactive[str] = var("V/m")
 
     def __init__(self, fmt, *, id: str | None = None) -> None:  # noqa: A002 - Textual's name
         super().__init__("", id=id)
@@ -129,9 +130,9 @@ class ProgressPanel(Vertical):
     """
 
     #: Points done, readings, first reading.
-    progress: reactive[ProgressSummary | None] = reactive(None)
+    progress: reactive[ProgressSummary | None] = var(None)
     #: The clock's reading (monotonic seconds), set by the panel's timer.
-    now: reactive[float] = reactive(time.monotonic)
+    now: reactive[float] = var(time.monotonic)
 
     def __init__(self, *, id: str | None = None) -> None:  # noqa: A002 - Textual's name
         super().__init__(id=id)
@@ -208,7 +209,7 @@ class HotspotSummary:
 class HotspotLine(Static):
     """Hotspots at the action level on the live map, and how many points it suggests."""
 
-    summary: reactive[HotspotSummary | None] = reactive(None)
+    summary: reactive[HotspotSummary | None] = var(None)
 
     def watch_summary(self, s: HotspotSummary | None) -> None:
         if s is None:
@@ -232,9 +233,9 @@ class ConditionsLine(Static):
     How old is the line's own clock: it looks again every :data:`TICK_S`.
     """
 
-    summary: reactive[ConditionsSummary | None] = reactive(None)
+    summary: reactive[ConditionsSummary | None] = var(None)
     #: Minutes since the newest note (the line changes once a minute at most).
-    age_min: reactive[int] = reactive(0)
+    age_min: reactive[int] = var(0)
 
     def on_mount(self) -> None:
         self.set_interval(TICK_S, self._tick)
@@ -278,11 +279,11 @@ class EntryRow(Horizontal):
     """The entry line with its label: where the value goes and what kind it is."""
 
     #: Kind of the next typed value: ``field``, ``reference`` or ``zero``.
-    armed: reactive[str] = reactive("field")
+    armed: reactive[str] = var("field")
     #: The current place: a point label, or ``free``.
-    where: reactive[str] = reactive("")
+    where: reactive[str] = var("")
     #: Unit of a bare number.
-    unit: reactive[str] = reactive("V/m")
+    unit: reactive[str] = var("V/m")
 
     def compose(self) -> ComposeResult:
         yield Label("", id="entry-label")
@@ -324,7 +325,7 @@ class StatusMessage:
 class StatusLine(Static):
     """The last thing the app said, with the time it said it (errors in the error style)."""
 
-    message: reactive[StatusMessage | None] = reactive(None, always_update=True)
+    message: reactive[StatusMessage | None] = var(None, always_update=True)
 
     def say(self, text: str, error: bool = False) -> None:
         """Show one line, stamped with the local time."""
