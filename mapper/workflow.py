@@ -606,6 +606,8 @@ def live_products(
     except MapperError as exc:
         corrected = [CorrectedReading(r, r.value_v_per_m) for r in readings if r.kind == "field"]
         notes = (f"corrections not applied ({exc.message}): the live map shows the readings as entered",)
+    if cancelled():
+        return None
     field_rs = usable(corrected)
     xy, values = field_inputs(field_rs)
     grid, engine = fit_live_field(xy, values, site.outline)

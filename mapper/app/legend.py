@@ -2,13 +2,17 @@
 
 from __future__ import annotations
 
+from dataclasses import dataclass
+
 import numpy as np
 from rich.color import Color
 from rich.style import Style
 from rich.text import Text
+from textual.reactive import reactive, var
 from textual.widgets import Static
 
 from mapper.app.palette import FEATURE_COLOURS, sequential
+from mapper.app.raster import LAYER_TITLES
 from mapper.features import colour_scale as cs
 from mapper.units import format_field
 
@@ -82,5 +86,42 @@ def legend_text(layer: str, scale_v_per_m: float, unit: str, threshold_v_per_m: 
     return text
 
 
+@dataclass(frozen=True)
+class LegendKey:
+    """What the legend explains.
+
+    Attributes
+    ----------
+    layer : str
+        Layer drawn.
+    wanted : str
+        Layer chosen (F9); differs from ``layer`` while the map needs more readings.
+    scale_v_per_m : float
+        The drawn layer's colour scale, V/m.
+    unit : str
+        Display unit.
+    threshold_v_per_m : float
+        Action level, V/m.
+    """
+
+    layer: str
+    wanted: str
+    scale_v_per_m: float
+    unit: str
+    threshold_v_per_m: float
+
+
 class Legend(Static):
-    """The legend beside the map."""
+    """The legend beside the map: its title, the colours of the layer drawn and the symbols."""
+
+    key: reactive[LegendKey | None] = var(None)
+
+    def watch_key(self, key: LegendKey | None) -> None:
+        if key is None:
+            self.update("")
+            return
+        title = f"map: {LAYER_TITLES[key.layer]} (F9)"
+        if key.layer != key.wanted:
+            title += f"\n{LAYER_TITLES[key.wanted]}: needs more readings"
+        self.update(Text(title + "\n", style="bold")
+                    + legend_text(key.layer, key.scale_v_per_m, key.unit, key.threshold_v_per_m))

@@ -1,54 +1,56 @@
-"""The main screen: map, current point, entry line, progress, hotspots, status."""
+"""The main screen: map, current point, entry line, progress, hotspots, status.
+
+The screen composes the panels (:mod:`mapper.app.panels`, :mod:`mapper.app.legend`,
+:mod:`mapper.app.map_view`), binds the keys and turns each action into a call on the walk
+(:class:`~mapper.app.session.WalkSession`); after a change it hands the panels fresh summaries
+and each redraws itself if what it shows changed. The live refit
+(:func:`mapper.workflow.live_products`) and the serial meter run in workers.
+"""
 
 from __future__ import annotations
 
 import time
-from datetime import timedelta
 
-import numpy as np
-from rich.text import Text
 from textual import on, work
 from textual.app import ComposeResult
 from textual.containers import Horizontal, Vertical
 from textual.screen import Screen
-from textual.widgets import Footer, Input, Label, ProgressBar, Static
+from textual.widgets import Footer, Input
 from textual.worker import get_current_worker
 
-from mapper.app.entry_line import ENTRY_PATTERN, EntryLine
-from mapper.app.forms import Field, FormScreen
+from mapper.app.entry_line import EntryLine
 from mapper.app.help_screen import HelpScreen
 from mapper.app.hotspot_screen import HotspotScreen
 from mapper.app.keys import bindings
-from mapper.app.legend import Legend, legend_text
-from mapper.app.map_view import MapView
-from mapper.app.palette import FEATURE_COLOURS, hex_rgb
+from mapper.app.legend import Legend, LegendKey
+from mapper.app.map_data import LiveMap, MarkerBook, prepare_live_map
+from mapper.app.map_view import MapScene, MapView
+from mapper.app.panels import (
+    TICK_S,
+    ConditionsLine,
+    EntryRow,
+    HotspotLine,
+    HotspotSummary,
+    PointPanel,
+    ProgressPanel,
+    StatusLine,
+    TitleLine,
+)
 from mapper.app.raster import LAYER_TITLES, LAYERS, Markers
-from mapper.app.session import DRY_AIR_RH_PERCENT, WalkSession, parse_conditions, parse_xy
+from mapper.app.session import DRY_AIR_RH_PERCENT, WalkSession
+from mapper.app.walk_forms import conditions_form, edit_form, free_form, jump_form, settings_form
 from mapper.corrections.pipeline import load_meters
 from mapper.errors import MapperError
-from mapper.features.colour_scale import colours_rgb
-from mapper.nice import nice_ceiling
 from mapper.readings.serial_meter import MeterLine, SerialMeterReader
-from mapper.survey.store import utc_now
-from mapper.units import FIELD_UNITS, format_field, from_si
+from mapper.units import format_field
 from mapper.wording import plural
-from mapper.workflow import MIN_FIELD_POSITIONS, LiveResult, live_products
+from mapper.workflow import LiveResult, live_products
 
-#: How often the clock and the conditions reminder are checked, seconds.
-TICK_S = 1.0
 #: Wait after a reading before the refit starts, seconds: the frame saying "saved" is drawn
 #: first, and quick successive readings share one refit.
 REFIT_DELAY_S = 0.1
-#: The live map colours places within this many grid spacings of a reading; farther out it
-#: would show extrapolation (common practice, no source).
-REACH_SPACINGS = 2.0
 #: Below this terminal width the side panel narrows.
 NARROW_COLUMNS = 120
-
-
-def _hms(seconds: float) -> str:
-    seconds = int(max(seconds, 0))
-    return f"{seconds // 3600}:{seconds % 3600 // 60:02d}:{seconds % 60:02d}"
 
 
 class MainScreen(Screen):
@@ -60,6 +62,8 @@ class MainScreen(Screen):
         The open walk.
     ask_conditions : bool
         Ask for RH and temperature at the start and whenever they are due.
+    meter : SerialMeterReader, optional
+        A meter that sends one reading per line; its values land in the entry line.
     """
 
     CSS_PATH = "main_screen.tcss"
@@ -71,45 +75,39 @@ class MainScreen(Screen):
         super().__init__()
         self.session = session
         self.ask_conditions = ask_conditions
-        #: A meter that sends one reading per line; its values land in the entry line.
         self.meter = meter
-        #: Kind of the next typed value: ``field``, ``reference`` or ``zero``.
-        self.armed = "field"
         self.map_layer = "estimate"
+        #: The latest refit (``None`` until one finished) and the same ready to draw.
         self.live: LiveResult | None = None
+        self.live_map: LiveMap | None = None
+        self.marks = MarkerBook(session)
         self.suggestion_index = 0
         self.last_status = ""
         self.last_saved_label = ""
         self._asked_conditions_at = 0.0
         self._refit_timer = None
         self._remember_timer = None
-        self._shown: dict[str, object] = {}
-        self._t_open = time.monotonic()
 
     # ---------------------------------------------------------------- layout
     def compose(self) -> ComposeResult:
-        s = self.session
-        yield Static("", id="title")
+        yield TitleLine("", id="title")
         with Horizontal(id="body"):
-            yield MapView(s.site, id="map")
+            yield MapView(self.session.site, id="map")
             with Vertical(id="side"):
-                yield Static("", id="point")
-                yield Static("", id="progress-text")
-                yield ProgressBar(total=len(s.points), show_eta=False, id="progress")
-                yield Static("", id="hotspots")
-                yield Static("", id="conditions")
+                yield PointPanel(self.session.fmt, id="point")
+                yield ProgressPanel(id="progress-panel")
+                yield HotspotLine("", id="hotspots")
+                yield ConditionsLine("", id="conditions")
                 yield Legend("", id="legend")
-        with Horizontal(id="entry-row"):
-            yield Label("", id="entry-label")
-            yield EntryLine(id="entry")
-        yield Static("", id="status")
+        yield EntryRow(id="entry-row")
+        yield StatusLine("", id="status")
         yield Footer(compact=True)
 
     def on_mount(self) -> None:
         self.query_one("#entry", EntryLine).focus()
         self.refresh_all()
         self.set_status(f"opened {self.session.survey.path.name}: {self.resume_text()}")
-        self.start_refit()
+        self.schedule_refit()  # after the first frame is drawn
         self.set_interval(TICK_S, self._tick)
         if self.ask_conditions and self.session.conditions_due():
             self.call_after_refresh(self.action_conditions)
@@ -122,213 +120,62 @@ class MainScreen(Screen):
     def resume_text(self) -> str:
         """One line on where the walk stands."""
         s = self.session
-        n = len(s.field_readings())
+        n = s.field_count
         if n == 0:
             return f"new walk, start at point {s.current.label}"
-        return (f"{plural(n, 'reading')}, {len(s.visited)}/{len(s.points)} points done, resuming at point "
+        return (f"{plural(n, 'reading')}, {s.visited_count}/{len(s.points)} points done, resuming at point "
                 f"{s.current.label}")
+
+    @property
+    def armed(self) -> str:
+        """Kind of the next typed value: ``field``, ``reference`` or ``zero``."""
+        return self.query_one(EntryRow).armed
+
+    @armed.setter
+    def armed(self, kind: str) -> None:
+        self.query_one(EntryRow).armed = kind
 
     # ------------------------------------------------------------ refreshing
     def refresh_all(self) -> None:
-        """Redraw every panel from the session (cheap; called after each change)."""
-        self._title()
-        self._point_panel()
-        self._progress()
-        self._hotspot_line()
-        self._conditions_line()
-        self._entry_label()
-        self._draw_map()
+        """Hand every panel its data from the session; each redraws only what changed.
 
-    def _title(self) -> None:
-        s = self.session
-        self._show("#title",
-            f" {s.survey.name} · {s.survey.path.name} · {s.display_unit}, {s.sign_convention} sign"
-            " · F1 help"
-        )
-
-    def _point_panel(self) -> None:
-        s = self.session
-        t = Text()
-        if s.free_xy is not None:
-            t.append("Free position\n", style="bold")
-            t.append(f"x {s.free_xy[0]:.2f} m  y {s.free_xy[1]:.2f} m\n")
-            here = [r for r in s.readings_here() if r.kind == "field"]
-            t.append(f"readings here: {len(here)}\n")
-            t.append("arrows nudge · click places · F4 back to grid\n", style="dim")
-        else:
-            p = s.current
-            t.append(f"Point {p.label}", style="bold reverse")
-            t.append(f"  x {p.x:.2f} m, y {p.y:.2f} m\n")
-            stats = s.stats_at(p.label)
-            if not stats.readings:
-                t.append("no reading yet\n", style="dim")
-            else:
-                shown = stats.readings[-3:]
-                t.append(f"readings here ({len(stats.readings)}):\n")
-                for r in shown:
-                    local = r.time.astimezone().strftime("%H:%M:%S")
-                    t.append(f"  {r.entered_value:g} {r.entered_unit}  {local}")
-                    if r.flags:
-                        t.append(f"  [{', '.join(r.flags)}]", style="yellow")
-                    if r.note:
-                        t.append(f"  “{r.note[:18]}”", style="italic")
-                    t.append("\n")
-                t.append(f"mean {s.fmt(stats.mean_v_per_m)}")
-                if stats.spread_v_per_m is not None:
-                    spread = from_si(stats.spread_v_per_m, s.display_unit)
-                    t.append(f"  spread ±{spread:.3g} {s.display_unit}")
-                t.append("\n")
-        heading = s.heading()
-        if heading is None:
-            t.append("all planned points done", style="bold green")
-        else:
-            target, dist, arrow = heading
-            t.append(f"next to do: {target.label}  {dist:.1f} m {arrow}", style="bold")
-        self._show("#point", t)
-
-    def _progress(self) -> None:
-        s = self.session
-        done, total = len(s.visited), len(s.points)
-        n = len(s.field_readings())
-        session_s = time.monotonic() - self._t_open
-        first = min((r.time for r in s.readings.values()), default=None)
-        since = ""
-        if first is not None:
-            age = (utc_now() - first).total_seconds()
-            since = (f" · survey {_hms(age)}" if 0 <= age < 86400
-                     else f" · since {first.astimezone():%d %b}")
-        self._show("#progress-text",
-            f"done {done}/{total} · {plural(n, 'reading')}\nsession {_hms(session_s)}{since}"
-        )
-        self.query_one("#progress", ProgressBar).update(total=total, progress=done)
-
-    def _hotspot_line(self) -> None:
-        s = self.session
-        level = format_field(s.threshold_v_per_m, s.display_unit, 3)
-        live = self.live
-        if live is None:
-            text = f"hotspots (▲ ±{level}): fitting…"
-        elif live.grid is None:
-            text = (f"hotspots (▲ ±{level}): {live.hotspot_count or '-'}\n"
-                    f"map after {MIN_FIELD_POSITIONS} readings")
-        else:
-            text = f"hotspots (▲ ±{level}): {live.hotspot_count}"
-            if live.suggestions:
-                text += f"\nsuggested points: {len(live.suggestions)} (F3)"
-        self._show("#hotspots", text)
-        self.query_one("#hotspots").set_class(bool(live and live.hotspot_count), "alert")
-
-    def _conditions_line(self) -> None:
-        s = self.session
-        last = s.last_conditions
-        widget = self.query_one("#conditions", Static)
-        if last is None:
-            self._show("#conditions", "conditions: none yet (F5)")
-            widget.set_class(True, "warn")
-            return
-        age = (utc_now() - last.time).total_seconds()
-        parts = []
-        if last.rh_percent is not None:
-            parts.append(f"RH {last.rh_percent:g} %")
-        if last.temperature_c is not None:
-            parts.append(f"{last.temperature_c:g} °C")
-        text = f"{' · '.join(parts)} · {_age_text(age)}"
-        if s.dry_air():
-            text += f"\nDRY AIR (RH < {DRY_AIR_RH_PERCENT:g} %): high charging"
-        if s.conditions_due():
-            text += "\nconditions due (F5)"
-        self._show("#conditions", text)
-        widget.set_class(s.dry_air() or s.conditions_due(), "warn")
-
-    def _entry_label(self) -> None:
-        s = self.session
-        where = "free" if s.free_xy is not None else s.current.label
-        label = {"field": f"{where} ›", "reference": f"REF at {where} ›", "zero": "ZERO ›"}[self.armed]
-        self.query_one("#entry-label", Label).update(label)
-        entry = self.query_one("#entry", EntryLine)
-        entry.placeholder = f"value in {s.display_unit} (or with unit, e.g. 2.1kV/m), Enter saves"
-        self.query_one("#entry-row").set_class(self.armed != "field", "armed")
-
-    def scale(self) -> float:
-        """What the map's colours are scaled to, V/m.
-
-        The signed layers use one fixed scale tied to the action level (the same colours as the
-        report and the GeoPackage styles, whatever has been read so far); the uncertainty layer
-        spans its values (a round number above the largest).
+        Nothing here goes through all readings of the survey: the session keeps its counts,
+        means and markers up to date reading by reading.
         """
         s = self.session
-        grid = self.live.grid if self.live else None
-        if self.map_layer == "std" and grid is not None:
-            std = np.asarray(grid.std, float)
-            return nice_ceiling(float(np.nanmax(std))) if np.isfinite(std).any() else 1.0
-        return s.threshold_v_per_m
+        self.query_one(TitleLine).heading = (s.survey.name, s.survey.path.name, s.display_unit, s.sign_convention)
+        point = self.query_one(PointPanel)
+        point.unit = s.display_unit
+        point.place = s.place_summary()
+        self.query_one(ProgressPanel).progress = s.progress_summary()
+        self.query_one(HotspotLine).summary = HotspotSummary.of(self.live, s.threshold_v_per_m, s.display_unit)
+        self.query_one(ConditionsLine).summary = s.conditions_summary()
+        row = self.query_one(EntryRow)
+        row.where, row.unit = ("free" if s.free_xy is not None else s.current.label), s.display_unit
+        self._draw_map()
 
     def _draw_map(self) -> None:
         s = self.session
-        sign = -1.0 if s.sign_convention == "atmospheric" else 1.0
-        grid = self.live.grid if self.live else None
-        layer = self.map_layer if grid is not None else "readings"
-        scale = self.scale()
-        markers = self._markers(layer, sign)
-        suggested = [(g.x, g.y) for g in self.live.suggestions] if self.live else []
-        reach_xy = None
-        if grid is not None and getattr(self, "_reach_for", None) is not grid:
-            # Positions the live field was fitted to, fixed with the grid (cached by identity).
-            self._reach_for = grid
-            self._reach_xy = np.array([(r.x, r.y) for r in s.field_readings()], float).reshape(-1, 2)
-            reach_xy = self._reach_xy
-        self.query_one("#map", MapView).show(
-            layer=layer, grid=grid, scale=scale, markers=markers, current=s.position,
-            suggested=suggested, sign=sign, reach_xy=reach_xy, reach_m=REACH_SPACINGS * s.plan.spacing_m,
+        live = self.live_map
+        layer = self.map_layer if live is not None and live.grid is not None else "readings"
+        scale = live.scale(layer, s.threshold_v_per_m) if live is not None else s.threshold_v_per_m
+        suggested = tuple((g.x, g.y) for g in live.result.suggestions) if live is not None else ()
+        self.query_one(MapView).scene = MapScene(
+            layer, live, scale, self.marks.planned(layer), self.marks.free(layer), s.position, suggested,
         )
-        title = f"map: {LAYER_TITLES[layer]} (F9)"
-        if layer != self.map_layer:
-            title += f"\n{LAYER_TITLES[self.map_layer]}: needs more readings"
-        self._show("#legend", Text(title + "\n", style="bold")
-                   + legend_text(layer, scale, s.display_unit, s.threshold_v_per_m))
+        self.query_one(Legend).key = LegendKey(layer, self.map_layer, scale, s.display_unit, s.threshold_v_per_m)
 
     def _markers(self, layer: str, sign: float) -> Markers:
         """Planned points (to do / done) and free-position readings as map markers."""
-        s = self.session
-        means = s.point_means()
-        xy = np.array([(p.x, p.y) for p in s.points], float).reshape(-1, 2)
-        rgb = np.empty((len(s.points), 3), np.uint8)
-        rgb[:] = hex_rgb(FEATURE_COLOURS["unvisited"])
-        done = np.array([p.label in means for p in s.points], bool)
-        if done.any():
-            if layer == "readings":
-                values = np.array([means[p.label] for p, d in zip(s.points, done, strict=True) if d])
-                rgb[done] = colours_rgb(sign * values, s.threshold_v_per_m)
-            else:
-                rgb[done] = hex_rgb(FEATURE_COLOURS["visited"])
-        free = [r for r in s.field_readings() if r.point is None]
-        if free:
-            fxy = np.array([(r.x, r.y) for r in free], float)
-            if layer == "readings":
-                frgb = colours_rgb(sign * np.array([r.value_v_per_m for r in free]), s.threshold_v_per_m)
-            else:
-                frgb = np.tile(np.array(hex_rgb(FEATURE_COLOURS["free"]), np.uint8), (len(free), 1))
-            xy, rgb = np.vstack([xy, fxy]), np.vstack([rgb, frgb])
-        return Markers(xy, rgb)
-
-    def _show(self, selector: str, content) -> None:
-        """Update a Static only when its content changed (each update costs a layout pass)."""
-        key = content.markup if isinstance(content, Text) else content
-        if self._shown.get(selector) != key:
-            self._shown[selector] = key
-            self.query_one(selector, Static).update(content)
+        return self.marks.markers(layer, sign)
 
     def set_status(self, text: str, error: bool = False) -> None:
         """Show one line on the status line (errors in the error style)."""
         self.last_status = text
-        stamp = time.strftime("%H:%M:%S")
-        status = self.query_one("#status", Static)
-        status.update(f"{stamp}  {text}")
-        status.set_class(error, "error")
+        self.query_one(StatusLine).say(text, error)
 
     def _tick(self) -> None:
-        self._progress()
-        self._conditions_line()
+        self.query_one(ConditionsLine).summary = self.session.conditions_summary()
         if (
             self.ask_conditions
             and self.session.conditions_due()
@@ -357,15 +204,19 @@ class MainScreen(Screen):
             readings, s.site, threshold_v_per_m, s.points, cancelled=lambda: worker.is_cancelled, meters=meters,
             unit=s.display_unit,
         )
-        if result is not None and not worker.is_cancelled:
-            self.app.call_from_thread(self._apply_live, result)
+        if result is None or worker.is_cancelled:
+            return
+        live = prepare_live_map(result, readings, s.sign_convention, s.plan.spacing_m)
+        if not worker.is_cancelled:
+            self.app.call_from_thread(self._apply_live, live)
 
-    def _apply_live(self, result: LiveResult) -> None:
+    def _apply_live(self, live: LiveMap) -> None:
         old = self.live.notes if self.live is not None else ()
-        self.live = result
-        self._hotspot_line()
+        self.live_map, self.live = live, live.result
+        s = self.session
+        self.query_one(HotspotLine).summary = HotspotSummary.of(self.live, s.threshold_v_per_m, s.display_unit)
         self._draw_map()
-        for note in result.notes:
+        for note in live.result.notes:
             if note not in old:  # say each once, not after every refit
                 self.set_status(note, error=True)
 
@@ -434,11 +285,9 @@ class MainScreen(Screen):
         if self.armed != "field":
             self.set_status(f"{self.armed} entry cancelled")
         self.armed = "field"
-        self._entry_label()
 
     def action_arm(self, kind: str) -> None:
         self.armed = "field" if self.armed == kind else kind
-        self._entry_label()
         if self.armed != "field":
             self.set_status(f"type the {kind} reading and press Enter (Esc cancels)")
 
@@ -453,11 +302,6 @@ class MainScreen(Screen):
         self.schedule_refit()
 
     # ---------------------------------------------------------------- moving
-    def _moved(self) -> None:
-        self._point_panel()
-        self._entry_label()
-        self._draw_map()
-
     def action_move(self, direction: str) -> None:
         s = self.session
         if s.free_xy is not None:
@@ -475,7 +319,7 @@ class MainScreen(Screen):
                 return
             s.go(target)
             self._remember()
-        self._moved()
+        self.refresh_all()
 
     def _remember(self) -> None:
         # Debounced: store the position once the surveyor stops moving for a moment.
@@ -491,7 +335,7 @@ class MainScreen(Screen):
             return
         s.go(target)
         self._remember()
-        self._moved()
+        self.refresh_all()
 
     def action_suggested(self) -> None:
         sugg = self.live.suggestions if self.live else ()
@@ -507,7 +351,7 @@ class MainScreen(Screen):
         else:
             s.free(g.x, g.y)
         self.set_status(f"suggested: {g.why}")
-        self._moved()
+        self.refresh_all()
 
     @on(MapView.Clicked)
     def _clicked(self, event: MapView.Clicked) -> None:
@@ -521,7 +365,7 @@ class MainScreen(Screen):
         else:
             s.go(s.nearest_point(event.x, event.y))
             self._remember()
-        self._moved()
+        self.refresh_all()
         self.query_one("#entry", EntryLine).focus()
 
     def action_free(self) -> None:
@@ -529,46 +373,12 @@ class MainScreen(Screen):
         if s.free_xy is not None:
             s.go(s.current)  # back where the walk order was left, not to the nearest point
             self.set_status(f"back on the grid at point {s.current.label}")
-            self._moved()
+            self.refresh_all()
             return
-        x, y = s.position
-
-        def submit(values: dict[str, str]) -> str:
-            fx, fy = s.free(*parse_xy(values["xy"]))
-            self._moved()
-            return f"free position ({fx:.2f}, {fy:.2f}) m: type readings, arrows nudge, F4 back to grid"
-
-        self.app.push_screen(
-            FormScreen(
-                "Free-position reading",
-                [Field("xy", "position x, y (site metres)", f"{x:.2f}, {y:.2f}", "e.g. 4.5, 2",
-                       r"[0-9+\-., ;eE]*")],
-                submit,
-                explain="For places off the grid, e.g. right beside a conveyor. After this, arrows "
-                "nudge the cursor by a quarter spacing and a click on the map places it.",
-                form_id="free-form",
-            ),
-            self._form_done,
-        )
+        self.app.push_screen(free_form(s, self.refresh_all), self._form_done)
 
     def action_jump(self) -> None:
-        s = self.session
-
-        def submit(values: dict[str, str]) -> str:
-            p = s.jump(values["label"])
-            self._remember()
-            self._moved()
-            return f"at {p.label}"
-
-        self.app.push_screen(
-            FormScreen(
-                "Go to point",
-                [Field("label", "point label", placeholder=f"e.g. {s.points[len(s.points) // 2].label}")],
-                submit,
-                form_id="jump-form",
-            ),
-            self._form_done,
-        )
+        self.app.push_screen(jump_form(self.session, self.refresh_all, self._remember), self._form_done)
 
     def _form_done(self, message: str | None) -> None:
         if message:
@@ -576,128 +386,23 @@ class MainScreen(Screen):
         self.refresh_all()
         self.query_one("#entry", EntryLine).focus()
 
-    # ------------------------------------------------------ notes and edits
-    def _choices_here(self, field_only: bool = False):
-        s = self.session
-        return [
-            (str(r.id), f"#{r.id} {s.describe(r)}  {r.time.astimezone():%H:%M:%S}")
-            for r in s.readings_here()
-            if not field_only or r.kind == "field"
-        ]
-
+    # ------------------------------------------- notes, edits, conditions, settings
     def action_edit(self) -> None:
-        s = self.session
-        choices = self._choices_here()
+        self.app.push_screen(edit_form(self.session, self.start_refit), self._form_done)
 
-        def submit(values: dict[str, str]) -> str:
-            doubtful = values.get("check") == "1"
-            if "choice" not in values:
-                if not values["note"].strip():
-                    raise MapperError("type a note (there is no reading here to edit)")
-                s.note_place(values["note"], doubtful)
-                return f"noted at {s.where} (in the survey log)"
-            note = values["note"].strip() or None  # blank keeps the stored note
-            new = s.revise(int(values["choice"]), values["value"], note, True if doubtful else None)
-            if new is None:
-                return "nothing changed"
-            if values["value"].strip():
-                self.start_refit()
-            flag = " [doubtful]" if doubtful else ""
-            note = f" “{new.note}”" if new.note else ""
-            return f"saved edit {s.describe(new)}{flag}{note} (old row kept, marked replaced)"
-
-        fields = [Field("note", "note", "", "blank keeps the note; e.g. ioniser off")]
-        if choices:
-            fields.insert(0, Field("value", f"new value ({s.display_unit})", "",
-                                   "blank keeps the value", ENTRY_PATTERN))
-        self.app.push_screen(
-            FormScreen(
-                f"Edit at {s.where}",
-                fields,
-                submit,
-                explain="Changes the highlighted reading (Shift+Tab to the list to pick another); "
-                "the old row stays in the file." if choices
-                else "No reading here yet: the note goes into the survey log.",
-                choices=choices,
-                check="mark doubtful (flag for re-check)",
-                form_id="edit-form",
-            ),
-            self._form_done,
-        )
-
-    # ------------------------------------------------------------- conditions
     def action_conditions(self) -> None:
-        s = self.session
         self._asked_conditions_at = time.monotonic()
-        last = s.last_conditions
 
-        def submit(values: dict[str, str]) -> str:
-            rh, temp = parse_conditions(values["rh"], values["temp"])
-            s.add_conditions(rh, temp, values["note"].strip())
-            msg = "saved conditions " + " · ".join(
-                part for part in (f"RH {rh:g} %" if rh is not None else "",
-                                  f"{temp:g} °C" if temp is not None else "") if part
+        def warn_dry(rh: float) -> None:
+            self.app.notify(
+                f"RH {rh:g} % is below {DRY_AIR_RH_PERCENT:g} %: charging rises sharply in dry air.",
+                title="Dry air", severity="warning", timeout=8,
             )
-            if rh is not None and rh < DRY_AIR_RH_PERCENT:
-                msg += f" · DRY AIR (below {DRY_AIR_RH_PERCENT:g} %): expect high charging"
-                self.app.notify(
-                    f"RH {rh:g} % is below {DRY_AIR_RH_PERCENT:g} %: charging rises sharply in dry air.",
-                    title="Dry air", severity="warning", timeout=8,
-                )
-            return msg
 
-        every = int(s.conditions_every / timedelta(minutes=1))
-        self.app.push_screen(
-            FormScreen(
-                "Conditions",
-                [
-                    Field("rh", "relative humidity, %", placeholder="e.g. 45"),
-                    Field("temp", "air temperature, °C", placeholder="e.g. 21.5"),
-                    Field("note", "note (optional)", placeholder="e.g. ionisers on, doors closed"),
-                ],
-                submit,
-                explain=(
-                    f"Asked at the start and every {every} min. Below {DRY_AIR_RH_PERCENT:g} % RH "
-                    "charging rises sharply. Esc skips."
-                    + (f"\nLast: RH {last.rh_percent} %, {last.temperature_c} °C" if last else "")
-                ),
-                form_id="conditions-form",
-            ),
-            self._form_done,
-        )
+        self.app.push_screen(conditions_form(self.session, warn_dry), self._form_done)
 
-    # --------------------------------------------------------------- settings
     def action_settings(self) -> None:
-        s = self.session
-
-        def submit(values: dict[str, str]) -> str:
-            unit_text = values["unit"].strip() or s.display_unit
-            from mapper.units import canonical_unit
-
-            unit = canonical_unit(unit_text)
-            threshold_text = values["threshold"].strip()
-            if threshold_text:
-                s.set_threshold(threshold_text)
-            if unit != s.display_unit:
-                s.set_display_unit(unit)
-            self.start_refit()
-            return (f"threshold {format_field(s.threshold_v_per_m, s.display_unit, 4)}, "
-                    f"display unit {s.display_unit}")
-
-        self.app.push_screen(
-            FormScreen(
-                "Settings",
-                [
-                    Field("threshold", f"threshold (action level; {s.display_unit} unless a unit is typed)",
-                          format_field(s.threshold_v_per_m, s.display_unit, 4)),
-                    Field("unit", f"display unit: one of {', '.join(FIELD_UNITS)}", s.display_unit),
-                ],
-                submit,
-                explain="Saved in the survey file. The limits are defaults; the site's ESD control plan decides.",
-                form_id="settings-form",
-            ),
-            self._form_done,
-        )
+        self.app.push_screen(settings_form(self.session, self.start_refit), self._form_done)
 
     # ---------------------------------------------------------- other screens
     def action_layer(self) -> None:
@@ -728,14 +433,3 @@ class MainScreen(Screen):
             ),
             done,
         )
-
-
-
-def _age_text(seconds: float) -> str:
-    """How long ago, in the largest sensible unit: ``12 min ago``, ``5 h ago``, ``14 days ago``."""
-    minutes = int(seconds // 60)
-    if minutes < 120:
-        return f"{minutes} min ago"
-    if minutes < 48 * 60:
-        return f"{minutes // 60} h ago"
-    return f"{minutes // (24 * 60)} days ago"

@@ -2,25 +2,27 @@
 
 from __future__ import annotations
 
-from collections.abc import Sequence
+from dataclasses import dataclass
 
 import numpy as np
 from rich.color import Color
 from rich.segment import Segment
 from rich.style import Style
-from scipy.spatial import cKDTree
 from textual import events
 from textual.geometry import Region
 from textual.message import Message
+from textual.reactive import reactive, var
 from textual.strip import Strip
 from textual.widget import Widget
 
+from mapper.app.map_data import FreeMarkers, LiveMap
 from mapper.app.raster import (
     Frame,
     Markers,
     SiteLayers,
     compose,
     make_frame,
+    marker_pixels,
     sample_grid,
     site_layers,
 )
@@ -29,15 +31,50 @@ from mapper.site.model import Site
 UPPER_HALF = "▀"
 
 
+@dataclass(frozen=True)
+class MapScene:
+    """Everything the map shows at one moment (big parts compared by identity).
+
+    Attributes
+    ----------
+    layer : str
+        Layer drawn: ``readings``, ``estimate`` or ``std``.
+    live : LiveMap or None
+        The latest live refit, ready to draw.
+    scale : float
+        The drawn layer's colour scale, V/m (:meth:`LiveMap.scale`).
+    planned : Markers
+        Planned points.
+    free : FreeMarkers
+        Free-position readings (drawn over the planned points).
+    current : (x, y) or None
+        Where the surveyor stands, metres.
+    suggested : tuple of (x, y)
+        Suggested places, metres.
+    """
+
+    layer: str
+    live: LiveMap | None
+    scale: float
+    planned: Markers
+    free: FreeMarkers
+    current: tuple[float, float] | None
+    suggested: tuple[tuple[float, float], ...] = ()
+
+
 class MapView(Widget):
     """A site map of coloured half-block cells: the upper pixel in the foreground colour, the
-    lower pixel in the background colour.
+    lower pixel in the background colour. Set :attr:`scene` and it redraws itself.
 
     Parameters
     ----------
     site : Site
         The site drawn.
     """
+
+    #: What the map shows; each new scene is drawn, and only the rows that changed are refreshed
+    #: (a ``var``: a plain reactive would repaint the whole map on every change).
+    scene: reactive[MapScene | None] = var(None, init=False)
 
     class Clicked(Message):
         """The map was clicked at a site position (metres)."""
@@ -50,48 +87,20 @@ class MapView(Widget):
     def __init__(self, site: Site, *, id: str | None = None) -> None:  # noqa: A002 - Textual's name
         super().__init__(id=id)
         self.site = site
-        self.map_layer = "readings"
-        self.grid = None
-        self.scale = 1.0
-        self.sign = 1.0
-        self.reach_xy = np.zeros((0, 2))
-        self.reach_m = np.inf
-        self.markers = Markers.empty()
-        self.current: tuple[float, float] | None = None
-        self.suggested: Sequence[tuple[float, float]] = ()
         self._frame: Frame | None = None
         self._layers: SiteLayers | None = None
         self._field_px: np.ndarray | None = None
         self._field_key: tuple | None = None
+        self._free_key: tuple | None = None
+        self._free_count = 0
+        self._free_mask: np.ndarray | None = None
+        self._free_rgb: np.ndarray | None = None
         self._strips: list[Strip] = []
         self._pairs: np.ndarray | None = None
         self._styles: dict[int, Style] = {}
 
     # -------------------------------------------------------------- drawing
-    def show(
-        self,
-        *,
-        layer: str,
-        grid,
-        scale: float,
-        markers: Markers,
-        current: tuple[float, float] | None,
-        suggested: Sequence[tuple[float, float]] = (),
-        sign: float = 1.0,
-        reach_xy: np.ndarray | None = None,
-        reach_m: float = np.inf,
-    ) -> None:
-        """Set what the map shows and redraw.
-
-        ``sign`` is -1 for a survey in the atmospheric convention: the estimate is coloured as
-        the meter reads it. ``scale`` is the full-colour magnitude, V/m. Field colours are left
-        out farther than ``reach_m`` metres from every position in ``reach_xy`` (n, 2), so the
-        map grows with the walk instead of showing extrapolation.
-        """
-        self.map_layer, self.grid, self.scale, self.sign = layer, grid, scale, sign
-        if reach_xy is not None:
-            self.reach_xy, self.reach_m = reach_xy, reach_m
-        self.markers, self.current, self.suggested = markers, current, suggested
+    def watch_scene(self) -> None:
         self._rebuild()
 
     def on_resize(self, event: events.Resize) -> None:
@@ -108,21 +117,37 @@ class MapView(Widget):
             self._field_key = None
         return self._frame
 
-    def _field_pixels(self, frame: Frame) -> np.ndarray | None:
-        if self.grid is None or self.map_layer == "readings":
+    def _field_pixels(self, frame: Frame, scene: MapScene) -> np.ndarray | None:
+        live = scene.live
+        if live is None or live.grid is None or scene.layer == "readings":
             return None
-        key = (id(self.grid), self.map_layer, frame, self.sign, id(self.reach_xy), self.reach_m)
+        key = (id(live), scene.layer, frame)
         if key != self._field_key:
-            values = self.sign * self.grid.estimate if self.map_layer == "estimate" else self.grid.std
-            px = sample_grid(frame, self.grid, values)
-            if len(self.reach_xy) and np.isfinite(self.reach_m):
+            values = live.estimate if scene.layer == "estimate" else live.std
+            px = sample_grid(frame, live.grid, values)
+            if live.reach is not None and np.isfinite(live.reach_m):
                 xx, yy = frame.centres()
-                dist, _ = cKDTree(self.reach_xy).query(np.column_stack([xx.ravel(), yy.ravel()]),
-                                                       distance_upper_bound=self.reach_m)
+                dist, _ = live.reach.query(np.column_stack([xx.ravel(), yy.ravel()]),
+                                           distance_upper_bound=live.reach_m)
                 px[~np.isfinite(dist).reshape(px.shape)] = np.nan
             self._field_px = px
             self._field_key = key
         return self._field_px
+
+    def _free_overlay(self, frame: Frame, free: FreeMarkers) -> tuple[np.ndarray, np.ndarray]:
+        """The free-position markers on pixels; readings added since the last time are painted
+        onto the previous overlay (later ones on top)."""
+        key = (free.generation, frame)
+        if key != self._free_key or len(free.xy) < self._free_count:
+            self._free_key, self._free_count = key, 0
+            self._free_mask = np.zeros((frame.height, frame.width), bool)
+            self._free_rgb = np.zeros((frame.height, frame.width, 3), np.uint8)
+        if len(free.xy) > self._free_count:
+            rows, cols, ok = marker_pixels(frame, free.xy[self._free_count:])
+            self._free_mask[rows[ok], cols[ok]] = True
+            self._free_rgb[rows[ok], cols[ok]] = free.rgb[self._free_count:][ok]
+            self._free_count = len(free.xy)
+        return self._free_mask, self._free_rgb
 
     def _style(self, pair: int) -> Style:
         """Style of a cell whose packed colours are ``top << 24 | bottom`` (24-bit RGB each)."""
@@ -137,12 +162,14 @@ class MapView(Widget):
         return style
 
     def _rebuild(self) -> None:
+        scene = self.scene
         frame = self._ensure_frame()
-        if frame is None or self._layers is None:
+        if frame is None or self._layers is None or scene is None:
             return
         img = compose(
-            frame, self._layers, layer=self.map_layer, field_values=self._field_pixels(frame),
-            scale=self.scale, markers=self.markers, current=self.current, suggested=self.suggested,
+            frame, self._layers, layer=scene.layer, field_values=self._field_pixels(frame, scene),
+            scale=scene.scale, markers=scene.planned, current=scene.current, suggested=scene.suggested,
+            overlay=self._free_overlay(frame, scene.free),
         )
         old = self._strips
         self._strips = self.image_strips(img)

@@ -123,7 +123,7 @@ def sample_grid(frame: Frame, grid, values: np.ndarray) -> np.ndarray:
     return out
 
 
-@dataclass(frozen=True)
+@dataclass(frozen=True, eq=False)
 class Markers:
     """Points drawn on the map, one pixel each.
 
@@ -142,6 +142,14 @@ class Markers:
     def empty(cls) -> Markers:
         """No markers."""
         return cls(np.zeros((0, 2)), np.zeros((0, 3), np.uint8))
+
+
+def marker_pixels(frame: Frame, xy: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Pixel rows and columns of marker positions (n, 2; metres), and which fall in the frame."""
+    cols = np.floor((xy[:, 0] - frame.x0) / frame.m_per_px).astype(int)
+    rows = np.floor((frame.y_top - xy[:, 1]) / frame.m_per_px).astype(int)
+    ok = (cols >= 0) & (cols < frame.width) & (rows >= 0) & (rows < frame.height)
+    return rows, cols, ok
 
 
 def _paint(img: np.ndarray, frame: Frame, x: float, y: float, colour, radius: int = 0, ring: bool = False) -> None:
@@ -165,6 +173,7 @@ def compose(
     markers: Markers,
     current: tuple[float, float] | None,
     suggested: Sequence[tuple[float, float]] = (),
+    overlay: tuple[np.ndarray, np.ndarray] | None = None,
 ) -> np.ndarray:
     """Paint one map image.
 
@@ -189,6 +198,9 @@ def compose(
         Where the surveyor stands, metres (drawn as a ring).
     suggested : sequence of (x, y)
         Suggested places, metres.
+    overlay : (ndarray, ndarray), optional
+        Markers already placed on pixels: a mask (height, width) and colours (height, width, 3),
+        drawn over ``markers`` (the map keeps thousands of free-position readings this way).
 
     Returns
     -------
@@ -205,10 +217,11 @@ def compose(
     img[layers.assets] = hex_rgb(FEATURE_COLOURS["asset"])
     img[layers.outline] = hex_rgb(FEATURE_COLOURS["outline"])
     if len(markers.xy):
-        cols = np.floor((markers.xy[:, 0] - frame.x0) / frame.m_per_px).astype(int)
-        rows = np.floor((frame.y_top - markers.xy[:, 1]) / frame.m_per_px).astype(int)
-        ok = (cols >= 0) & (cols < frame.width) & (rows >= 0) & (rows < frame.height)
+        rows, cols, ok = marker_pixels(frame, markers.xy)
         img[rows[ok], cols[ok]] = markers.rgb[ok]
+    if overlay is not None:  # markers painted beforehand (mask, colours), drawn over the others
+        mask, rgb = overlay
+        img[mask] = rgb[mask]
     for sx, sy in suggested:
         _paint(img, frame, sx, sy, hex_rgb(FEATURE_COLOURS["suggested"]), radius=1, ring=True)
     if current is not None:

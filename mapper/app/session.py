@@ -7,6 +7,7 @@ benchmarks drive it directly. Every method that changes the survey commits throu
 
 from __future__ import annotations
 
+import itertools
 import math
 import statistics
 from collections.abc import Iterable
@@ -124,6 +125,70 @@ class PointStats:
     spread_v_per_m: float | None
 
 
+@dataclass(frozen=True)
+class PlaceSummary:
+    """Where the surveyor stands and what has been read there (what the point panel shows).
+
+    Attributes
+    ----------
+    point : PlanPoint
+        The planned point the walk is at (left for the moment in free-position mode).
+    free_xy : (float, float) or None
+        Off-grid position, site metres, in free-position mode.
+    stats : PointStats or None
+        Field readings at ``point`` (``None`` in free-position mode).
+    free_count : int
+        Field readings at the free position.
+    heading : (PlanPoint, float, str) or None
+        Next point to do, its distance (metres) and direction arrow; ``None`` when all are done.
+    """
+
+    point: PlanPoint
+    free_xy: tuple[float, float] | None
+    stats: PointStats | None
+    free_count: int
+    heading: tuple[PlanPoint, float, str] | None
+
+
+@dataclass(frozen=True)
+class ProgressSummary:
+    """How far the walk has come.
+
+    Attributes
+    ----------
+    done, total : int
+        Planned points with a current field reading, and all planned points.
+    readings : int
+        Current field readings.
+    first_time : datetime or None
+        Earliest current reading of any kind (UTC).
+    """
+
+    done: int
+    total: int
+    readings: int
+    first_time: datetime | None
+
+
+@dataclass(frozen=True)
+class ConditionsSummary:
+    """The newest condition note and what it means for the walk.
+
+    Attributes
+    ----------
+    last : Conditions or None
+        Newest note.
+    dry : bool
+        The newest RH is below :data:`DRY_AIR_RH_PERCENT`.
+    due : bool
+        No note is younger than the session's ``conditions_every``.
+    """
+
+    last: Conditions | None
+    dry: bool
+    due: bool
+
+
 class WalkSession:
     """A survey being walked.
 
@@ -151,10 +216,21 @@ class WalkSession:
         self.outline = self.site.outline
         shapely.prepare(self.outline)
         #: Current readings of every kind, by id, in the order they were stored.
-        self.readings: dict[int, Reading] = {r.id: r for r in sorted(survey.readings(kind=None), key=lambda r: r.id)}
-        self._by_point: dict[str, list[int]] = {}
-        for r in self.readings.values():
-            self._index(r)
+        self.readings: dict[int, Reading] = {}
+        #: Bumped by every change to :attr:`readings` (views cache what they drew by it).
+        self.revision = 0
+        #: Bumped when a free-position field reading stops counting (the others only grow).
+        self.free_epoch = 0
+        self._by_point: dict[str, list[int]] = {}  # field readings at each planned point
+        self._means: dict[str, float] = {}  # their means, V/m
+        self._at_point: dict[str, list[int]] = {}  # readings of any kind at each planned point
+        self._at_free: dict[tuple[int, int], list[int]] = {}  # readings off the plan, by position
+        self._free_field: dict[int, Reading] = {}  # field readings off the plan, in storage order
+        self._field_count = 0
+        self._first_time: datetime | None = None
+        self._first_stale = False
+        for r in sorted(survey.readings(kind=None), key=lambda r: r.id):
+            self._add(r)
         self._conditions: list[Conditions] = survey.conditions()
         saved = survey.get(CURRENT_POINT_KEY)
         self.current: PlanPoint = self.by_label.get(saved or "") or self._first_unvisited() or self.points[0]
@@ -163,22 +239,59 @@ class WalkSession:
         self.started = utc_now()
 
     # ------------------------------------------------------------- indexes
-    def _index(self, r: Reading) -> None:
-        if r.kind == "field" and r.point:
+    # Kept up to date reading by reading, so nothing the screen asks for after each Enter has to
+    # go through every reading of the survey.
+    def _add(self, r: Reading) -> None:
+        self.readings[r.id] = r
+        self.revision += 1
+        if r.point:
+            self._at_point.setdefault(r.point, []).append(r.id)
+        else:
+            self._at_free.setdefault(_bucket(r.x, r.y), []).append(r.id)
+        if self._first_time is None or r.time < self._first_time:
+            if not self._first_stale:
+                self._first_time = r.time
+        if r.kind != "field":
+            return
+        self._field_count += 1
+        if r.point:
             self._by_point.setdefault(r.point, []).append(r.id)
+            self._update_mean(r.point)
+        else:
+            self._free_field[r.id] = r
 
-    def _unindex(self, r: Reading) -> None:
-        if r.kind == "field" and r.point and r.id in self._by_point.get(r.point, []):
-            self._by_point[r.point].remove(r.id)
-            if not self._by_point[r.point]:
-                del self._by_point[r.point]
+    def _remove(self, reading: Reading) -> None:
+        r = self.readings.pop(reading.id, None)
+        if r is None:
+            return
+        self.revision += 1
+        if r.point:
+            _drop(self._at_point, r.point, r.id)
+        else:
+            _drop(self._at_free, _bucket(r.x, r.y), r.id)
+        if r.time == self._first_time:
+            self._first_stale = True
+        if r.kind != "field":
+            return
+        self._field_count -= 1
+        if r.point:
+            _drop(self._by_point, r.point, r.id)
+            self._update_mean(r.point)
+        else:
+            del self._free_field[r.id]
+            self.free_epoch += 1
+
+    def _update_mean(self, label: str) -> None:
+        ids = self._by_point.get(label)
+        if ids:
+            self._means[label] = math.fsum(self.readings[i].value_v_per_m for i in ids) / len(ids)
+        else:
+            self._means.pop(label, None)
 
     def _replace(self, old: Reading, new: Reading | None) -> None:
-        self.readings.pop(old.id, None)
-        self._unindex(old)
+        self._remove(old)
         if new is not None:
-            self.readings[new.id] = new
-            self._index(new)
+            self._add(new)
 
     # ---------------------------------------------------------- read access
     @property
@@ -186,16 +299,46 @@ class WalkSession:
         """Labels of planned points with at least one current field reading."""
         return set(self._by_point)
 
+    @property
+    def visited_count(self) -> int:
+        """Number of planned points with at least one current field reading."""
+        return len(self._by_point)
+
+    @property
+    def field_count(self) -> int:
+        """Number of current field readings (planned and free positions)."""
+        return self._field_count
+
+    @property
+    def first_time(self) -> datetime | None:
+        """Time of the earliest current reading of any kind, or ``None`` without readings."""
+        if self._first_stale:
+            self._first_time = min((r.time for r in self.readings.values()), default=None)
+            self._first_stale = False
+        return self._first_time
+
     def point_means(self) -> dict[str, float]:
         """Mean current field reading at each visited planned point, V/m (physics sign)."""
-        out = {}
-        for label, ids in self._by_point.items():
-            out[label] = math.fsum(self.readings[i].value_v_per_m for i in ids) / len(ids)
-        return out
+        return dict(self._means)
 
     def field_readings(self) -> list[Reading]:
         """Current field readings (planned and free positions), in storage order."""
         return [r for r in self.readings.values() if r.kind == "field"]
+
+    @property
+    def free_field_count(self) -> int:
+        """Number of current field readings off the plan."""
+        return len(self._free_field)
+
+    def free_field_readings(self) -> list[Reading]:
+        """Current field readings off the plan (free positions), in storage order."""
+        return list(self._free_field.values())
+
+    def newest_free_field_readings(self, count: int) -> list[Reading]:
+        """The ``count`` most recently stored of :meth:`free_field_readings`, in storage order."""
+        if count <= 0:
+            return []
+        return list(itertools.islice(reversed(self._free_field.values()), count))[::-1]
 
     def stats_at(self, label: str) -> PointStats:
         """Current field readings at a planned point, their mean and spread."""
@@ -262,6 +405,21 @@ class WalkSession:
         dx, dy = target.x - x, target.y - y
         return target, math.hypot(dx, dy), direction_arrow(dx, dy)
 
+    def place_summary(self) -> PlaceSummary:
+        """The current place and its readings (a planned point's, or the free position's count)."""
+        if self.free_xy is not None:
+            here = sum(1 for r in self.readings_here() if r.kind == "field")
+            return PlaceSummary(self.current, self.free_xy, None, here, self.heading())
+        return PlaceSummary(self.current, None, self.stats_at(self.current.label), 0, self.heading())
+
+    def progress_summary(self) -> ProgressSummary:
+        """Points done, readings and when the survey started; independent of the survey's size."""
+        return ProgressSummary(self.visited_count, len(self.points), self._field_count, self.first_time)
+
+    def conditions_summary(self, now: datetime | None = None) -> ConditionsSummary:
+        """The newest condition note, whether the air is dry and whether a new note is due."""
+        return ConditionsSummary(self.last_conditions, self.dry_air(), self.conditions_due(now))
+
     # ------------------------------------------------------------- moving
     def go(self, point: PlanPoint) -> PlanPoint:
         """Stand at a planned point (leaves free-position mode)."""
@@ -322,8 +480,7 @@ class WalkSession:
             ),
             source="walk",
         )
-        self.readings[stored.id] = stored
-        self._index(stored)
+        self._add(stored)
         if advance and kind == "field" and on_grid:
             nxt = self.next_unvisited()
             if nxt is not None:
@@ -408,11 +565,12 @@ class WalkSession:
     def readings_here(self) -> list[Reading]:
         """Current readings (any kind) at the current place, newest first."""
         if self.free_xy is None:
-            label = self.current.label
-            found = [r for r in self.readings.values() if r.point == label]
+            found = [self.readings[i] for i in self._at_point.get(self.current.label, ())]
         else:
             fx, fy = self.free_xy
-            found = [r for r in self.readings.values() if r.point is None and math.hypot(r.x - fx, r.y - fy) < 1e-6]
+            bx, by = _bucket(fx, fy)
+            near = (i for dx in (-1, 0, 1) for dy in (-1, 0, 1) for i in self._at_free.get((bx + dx, by + dy), ()))
+            found = [r for r in map(self.readings.__getitem__, near) if math.hypot(r.x - fx, r.y - fy) < 1e-6]
         return sorted(found, key=lambda r: r.id, reverse=True)
 
     # ----------------------------------------------------------- conditions
@@ -466,6 +624,23 @@ class WalkSession:
         where = f"point {r.point}" if r.point else f"({r.x:.2f}, {r.y:.2f}) m"
         kind = "" if r.kind == "field" else f"{r.kind} "
         return f"{kind}{where} = {r.entered_value:g} {r.entered_unit}"
+
+
+#: Side of the squares that index readings off the plan by position, metres (far above the
+#: 1e-6 m within which two positions are the same place).
+_BUCKET_M = 1e-3
+
+
+def _bucket(x: float, y: float) -> tuple[int, int]:
+    return math.floor(x / _BUCKET_M), math.floor(y / _BUCKET_M)
+
+
+def _drop(index: dict, key, reading_id: int) -> None:
+    ids = index.get(key)
+    if ids and reading_id in ids:
+        ids.remove(reading_id)
+        if not ids:
+            del index[key]
 
 
 def field_positions(readings: Iterable[Reading]) -> tuple[list[tuple[float, float]], list[float]]:

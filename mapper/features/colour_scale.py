@@ -18,7 +18,8 @@ import math
 
 import numpy as np
 
-from mapper.units import canonical_unit, from_si, plain_number
+from mapper.nice import nice_ceiling
+from mapper.units import canonical_unit, from_si, plain_number, to_physics_sign
 
 #: Band edges as multiples of the action level, positive side (our choice, see the module text).
 EDGE_MULTIPLES: tuple[float, ...] = (0.1, 0.25, 0.5, 1.0, 2.0, 4.0, 8.0)
@@ -86,6 +87,36 @@ _TABLE = _table()
 def colours_rgb(values_v_per_m: np.ndarray, threshold_v_per_m: float) -> np.ndarray:
     """Colour of each value, ``values.shape + (3,)`` uint8 RGB."""
     return _TABLE[band_index(values_v_per_m, threshold_v_per_m) + len(POSITIVE)]
+
+
+def display_sign(sign_convention: str) -> float:
+    """The factor (+1 or -1) that turns a physics-sign field into a survey's sign convention.
+
+    Maps colour signed fields as the meter reads them, so red is positive as read. The two
+    conventions differ by the sign alone, so the same factor converts either way.
+
+    Parameters
+    ----------
+    sign_convention : str
+        ``physics`` or ``atmospheric``.
+    """
+    return to_physics_sign(1.0, sign_convention)
+
+
+def colours_as_read(values_v_per_m: np.ndarray, threshold_v_per_m: float, sign_convention: str) -> np.ndarray:
+    """Colour of each physics-sign value (V/m) as the meter reads it, ``values.shape + (3,)`` uint8 RGB."""
+    return colours_rgb(display_sign(sign_convention) * np.asarray(values_v_per_m, dtype=float), threshold_v_per_m)
+
+
+def uncertainty_scale(std_v_per_m: np.ndarray) -> float:
+    """Full-colour magnitude of an uncertainty (standard deviation) map, V/m.
+
+    The signed layers keep the fixed action-level scale; the uncertainty layer spans its own
+    values, up to a round number at or above the largest finite one (1.0 when there is none).
+    """
+    std = np.asarray(std_v_per_m, dtype=float)
+    finite = std[np.isfinite(std)]
+    return nice_ceiling(float(finite.max())) if finite.size else 1.0
 
 
 def band_hex(index: int) -> str:
@@ -158,10 +189,13 @@ __all__ = [
     "band_hex",
     "band_index",
     "colour_hex",
+    "colours_as_read",
     "colours_rgb",
+    "display_sign",
     "edges_v_per_m",
     "interval_hex",
     "legend_rows",
     "scale_levels",
+    "uncertainty_scale",
 ]
 

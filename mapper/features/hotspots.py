@@ -400,31 +400,62 @@ def reading_cells(xy: np.ndarray, clip: BaseGeometry) -> list[BaseGeometry]:
     list of shapely geometry
         One (possibly empty) polygonal geometry per position.
     """
-    n = xy.shape[0]
-    uniq, inverse = np.unique(np.round(xy, 3), axis=0, return_inverse=True)
-    inverse = inverse.ravel()
-    if uniq.shape[0] >= 2:
-        d, _ = cKDTree(uniq).query(uniq, k=2)
-        radius = np.maximum(d[:, 1] / 2.0, MEASURED_MIN_RADIUS_M)
-    else:
-        radius = np.full(uniq.shape[0], max(MEASURED_MIN_RADIUS_M, 1.0))
-    cells: list[BaseGeometry]
-    if uniq.shape[0] >= 2:
-        pts = shapely.points(uniq)
-        env = shapely.box(*clip.buffer(float(radius.max()) + 1.0).bounds)
-        vor = shapely.voronoi_polygons(shapely.multipoints(pts), extend_to=env, ordered=True)
-        cells = list(vor.geoms)
-        if len(cells) != uniq.shape[0]:  # collinear input: fall back to discs alone
-            cells = [env] * uniq.shape[0]
-    else:
-        cells = [clip]
-    # Clipped to a square of half-side r: on a square layout that is exactly the layout's cell,
-    # so neighbouring cells share an edge.
-    out_u = [polygonal(cells[k].intersection(shapely.box(uniq[k, 0] - radius[k], uniq[k, 1] - radius[k],
-                                                         uniq[k, 0] + radius[k], uniq[k, 1] + radius[k]))
-                       .intersection(clip))
-             for k in range(uniq.shape[0])]
-    return [out_u[inverse[i]] for i in range(n)]
+    cells = ReadingCells(xy, clip)
+    return [cells[i] for i in range(xy.shape[0])]
+
+
+class ReadingCells:
+    """The neighbourhoods of :func:`reading_cells`, each clipped only when asked for.
+
+    The Voronoi diagram of all positions is made once; a survey of many readings with a few at
+    the level clips only those few cells.
+
+    Parameters
+    ----------
+    xy : ndarray, shape (n, 2)
+        Reading positions, metres.
+    clip : shapely geometry
+        Region the cells are clipped to, metres.
+    """
+
+    def __init__(self, xy: np.ndarray, clip: BaseGeometry) -> None:
+        self.clip = clip
+        uniq, inverse = np.unique(np.round(xy, 3), axis=0, return_inverse=True)
+        self.uniq, self.inverse = uniq, inverse.ravel()
+        if uniq.shape[0] >= 2:
+            d, _ = cKDTree(uniq).query(uniq, k=2)
+            self.radius = np.maximum(d[:, 1] / 2.0, MEASURED_MIN_RADIUS_M)
+        else:
+            self.radius = np.full(uniq.shape[0], max(MEASURED_MIN_RADIUS_M, 1.0))
+        self._voronoi: list[BaseGeometry] | None = None
+        self._done: dict[int, BaseGeometry] = {}
+
+    def _cells(self) -> list[BaseGeometry]:
+        if self._voronoi is None:
+            uniq, radius, clip = self.uniq, self.radius, self.clip
+            if uniq.shape[0] >= 2:
+                pts = shapely.points(uniq)
+                env = shapely.box(*clip.buffer(float(radius.max()) + 1.0).bounds)
+                vor = shapely.voronoi_polygons(shapely.multipoints(pts), extend_to=env, ordered=True)
+                cells = list(shapely.get_parts(vor))
+                if len(cells) != uniq.shape[0]:  # collinear input: fall back to discs alone
+                    cells = [env] * uniq.shape[0]
+            else:
+                cells = [clip]
+            self._voronoi = cells
+        return self._voronoi
+
+    def __getitem__(self, i: int) -> BaseGeometry:
+        """The neighbourhood of position ``i``."""
+        k = int(self.inverse[i])
+        cell = self._done.get(k)
+        if cell is None:
+            # Clipped to a square of half-side r: on a square layout that is exactly the
+            # layout's cell, so neighbouring cells share an edge.
+            u, r = self.uniq[k], self.radius[k]
+            square = shapely.box(u[0] - r, u[1] - r, u[0] + r, u[1] + r)
+            cell = self._done[k] = polygonal(self._cells()[k].intersection(square).intersection(self.clip))
+        return cell
 
 
 def _region_facts(
@@ -441,7 +472,12 @@ def _region_facts(
     sign = 1.0 if polarity == "positive" else -1.0
     near = poly.buffer(half_cell)
     shapely.prepare(near)
-    inside = shapely.intersects_xy(near, xyv[:, 0], xyv[:, 1]) if len(xyv) else np.zeros(0, bool)
+    inside = np.zeros(len(xyv), bool)
+    if len(xyv):
+        # Only readings within the outline's bounds can be near it (a survey may hold many).
+        minx, miny, maxx, maxy = near.bounds
+        box = np.flatnonzero((xyv[:, 0] >= minx) & (xyv[:, 0] <= maxx) & (xyv[:, 1] >= miny) & (xyv[:, 1] <= maxy))
+        inside[box] = shapely.intersects_xy(near, xyv[box, 0], xyv[box, 1])
     r_vals = xyv[inside, 2]
     same = r_vals[sign * r_vals > 0]
     asset, dist = _nearest_asset(site, poly)
@@ -526,7 +562,7 @@ def _add_measured(found: list[dict], describe, ids: np.ndarray, xyv: np.ndarray,
         if not todo:
             continue
         if cells is None:
-            cells = reading_cells(xyv[:, :2], clip)
+            cells = ReadingCells(xyv[:, :2], clip)
         groups: list[tuple[BaseGeometry, list[int]]] = []
         for k in todo:
             if _holding(found, polarity, xyv[k, 0], xyv[k, 1]):

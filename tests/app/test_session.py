@@ -153,3 +153,60 @@ def test_undo_after_edit_brings_back_the_earlier_value(walk):
     walk.undo()
     assert sorted(r.value_v_per_m for r in walk.readings.values()) == [120.0]
     assert [r.value_v_per_m for r in walk.survey.readings()] == [120.0]
+
+
+def _summaries(walk: WalkSession) -> dict:
+    """What the screen asks the walk for after each change."""
+    here = {}
+    for p in walk.points:
+        walk.go(p)
+        here[p.label] = [r.id for r in walk.readings_here()]
+    return {
+        "progress": walk.progress_summary(),
+        "means": walk.point_means(),
+        "free": [r.id for r in walk.free_field_readings()],
+        "here": here,
+    }
+
+
+def test_running_counts_match_the_survey_file(walk: WalkSession, box_survey):
+    # The walk keeps its counts, means and indexes up to date reading by reading; a walk opened
+    # afresh from the file (which recounts everything) must see exactly the same.
+    walk.record("12")
+    walk.record("-30")
+    walk.jump("A1")
+    walk.record("14")                      # a repeat: the mean of A1 moves
+    walk.free(3.3, 4.1)
+    free = walk.record("55")
+    walk.record("57")                      # a second reading at the same free position
+    walk.record("9", kind="zero")
+    assert [r.entered_value for r in walk.readings_here()] == [9.0, 57.0, 55.0]
+    assert walk.place_summary().free_count == 2
+    walk.free(3.3 + 5e-7, 4.1)             # within 1e-6 m: the same place
+    assert len(walk.readings_here()) == 3
+    walk.go(walk.by_label["C3"])
+    walk.record("40", kind="reference")
+    walk.edit(free.id, "56")               # the edited row goes to the end of the storage order
+    walk.undo()                            # undoes the edit: 55 is back
+    walk.go(walk.by_label["A2"])
+    walk.record("-31")
+    walk.undo()
+    mine = _summaries(walk)
+    assert mine["progress"].readings == 5 and mine["progress"].done == 2
+    assert mine["means"]["A1"] == pytest.approx(13.0)
+    walk.survey.close()
+    with Survey.open(box_survey, write=True) as again:
+        fresh = WalkSession(again)
+        assert _summaries(fresh) == mine
+        assert fresh.first_time == min(r.time for r in again.readings(kind=None))
+
+
+def test_first_time_follows_undo(walk: WalkSession):
+    first = walk.record("12")
+    walk.record("13")
+    assert walk.first_time == first.time
+    walk.undo()
+    walk.undo()                            # the earliest reading goes too
+    assert walk.first_time is None and walk.field_count == 0 and walk.visited_count == 0
+    again = walk.record("14")
+    assert walk.first_time == again.time

@@ -95,3 +95,17 @@ def test_legend_rows_label_each_band_in_the_display_unit():
     assert len(rows) == 15 and rows[7] == (cs.NEUTRAL, "-12.5 to 12.5 V/in (neutral)")
     assert rows[3] == (cs.band_hex(4), "125 to 250 V/in (action level)")
     assert rows[0][1] == "1000 V/in and above" and rows[-1][1] == "-1000 V/in and below"
+
+
+def test_maps_colour_fields_as_the_meter_reads_them():
+    # Atmospheric potential-gradient convention: fair weather reads +100 V/m, a downward field,
+    # -100 V/m in the physics convention (Feynman Lectures II sec. 9-1).
+    assert cs.display_sign("physics") == 1.0 and cs.display_sign("atmospheric") == -1.0
+    physics = np.array([-100.0, 3 * T])
+    assert (cs.colours_as_read(physics, T, "atmospheric") == cs.colours_rgb(-physics, T)).all()
+    assert (cs.colours_as_read(physics, T, "physics") == cs.colours_rgb(physics, T)).all()
+
+
+def test_uncertainty_scale_is_a_round_number_above_the_largest():
+    assert cs.uncertainty_scale(np.array([[12.0, np.nan], [230.0, 4.0]])) == 250.0
+    assert cs.uncertainty_scale(np.full((2, 2), np.nan)) == 1.0
