@@ -31,6 +31,7 @@ from scipy.spatial import cKDTree
 
 _BLOCK_ELEMENTS = 2**21  # padded target x candidate distances per block (16 MB)
 _SPARSE_BLOCK = 2**15  # targets per block when each target is its own square
+_FAR = np.iinfo(np.int64).max
 _HASH = np.random.default_rng(20261203).integers(1, 2**63, size=64, dtype=np.uint64) | np.uint64(1)
 T = TypeVar("T")
 
@@ -243,14 +244,30 @@ def _worth_squares(targets: np.ndarray, side: float) -> bool:
 def _single_sets(tree: cKDTree, targets: np.ndarray, k: int, s: int, e: int) -> NeighbourSets:
     """Targets ``s`` to ``e - 1`` each in a square of its own, its k nearest its candidates."""
     m = e - s
-    d, idx = tree.query(targets[s:e], k=k)
-    d, idx = d.reshape(m, k), idx.reshape(m, k)
+    d, idx = _tied(tree, targets[s:e], k)
     one = np.arange(m)
     return NeighbourSets(
         target=one + s, row_square=one, row_slot=np.zeros(m, np.int64), set_rows=one, start=np.arange(m + 1),
         members=idx, square=one, colpos=np.broadcast_to(np.arange(k), (m, k)), cand=idx, centre=targets[s:e],
         cand_dist=d, on_datum=np.where(d[:, 0] == 0.0, 0, -1), core=np.full(m, k),
     )
+
+
+def _tied(tree: cKDTree, pts: np.ndarray, k: int) -> tuple[np.ndarray, np.ndarray]:
+    """The k nearest data of ``pts`` from the tree, readings tied at the k-th distance decided by
+    the lower data index (so the sets do not depend on the search's order)."""
+    m, n = pts.shape[0], tree.n
+    kk = min(k + 1, n)
+    d, idx = tree.query(pts, k=kk)
+    d, idx = d.reshape(m, kk), idx.reshape(m, kk)
+    if kk > k:
+        for i in np.flatnonzero(d[:, k - 1] == d[:, k]):
+            near = np.asarray(tree.query_ball_point(pts[i], d[i, k - 1] * (1.0 + 1e-12)), dtype=np.int64)
+            off = tree.data[near] - pts[i]
+            dist = np.sqrt(off[:, 0] * off[:, 0] + off[:, 1] * off[:, 1])
+            pick = np.lexsort((near, dist))[:k]
+            d[i, :k], idx[i, :k] = dist[pick], near[pick]
+    return d[:, :k], idx[:, :k]
 
 
 def _typical_kth_distance(data: np.ndarray, k: int) -> float:
@@ -349,10 +366,19 @@ class _Squares:
         d2 = cx
         d2 += cy
         rows = d2.shape[0]
-        near = np.argpartition(d2, [0, k - 1] if k > 1 else 0, axis=1)[:, :k]
+        part = np.argpartition(d2, [0, k - 1] if k > 1 else 0, axis=1)
+        near = part[:, :k]
         mask = np.zeros((rows, cmax), bool)
         np.put_along_axis(mask, near, True, axis=1)
         nearest = near[:, 0]
+        if k < cmax:  # readings tied at the k-th distance: the lower data index wins, as in _tied
+            kth = np.take_along_axis(d2, part[:, k - 1:k], axis=1)
+            tied = np.flatnonzero(np.take_along_axis(d2, part[:, k:], axis=1).min(axis=1) == kth[:, 0])
+            if tied.size:
+                rank = np.where(d2[tied] < kth[tied], -1, np.where(d2[tied] == kth[tied], cidx[sq_local[tied]], _FAR))
+                fixed = np.zeros((tied.shape[0], cmax), bool)
+                np.put_along_axis(fixed, np.argsort(rank, axis=1, kind="stable")[:, :k], True, axis=1)
+                mask[tied] = fixed
         on_datum = np.where(d2[np.arange(rows), nearest] == 0.0, nearest, -1)
         # The leading candidates every target of a square selects (at least those nearer the
         # centre than d_k(c) - 2h, by the triangle inequality; found here, not assumed).
