@@ -366,14 +366,14 @@ class _Squares:
         d2 = cx
         d2 += cy
         rows = d2.shape[0]
-        part = np.argpartition(d2, [0, k - 1] if k > 1 else 0, axis=1)
+        part = np.argpartition(d2, sorted({0, k - 1, min(k, cmax - 1)}), axis=1)
         near = part[:, :k]
         mask = np.zeros((rows, cmax), bool)
         np.put_along_axis(mask, near, True, axis=1)
         nearest = near[:, 0]
         if k < cmax:  # readings tied at the k-th distance: the lower data index wins, as in _tied
             kth = np.take_along_axis(d2, part[:, k - 1:k], axis=1)
-            tied = np.flatnonzero(np.take_along_axis(d2, part[:, k:], axis=1).min(axis=1) == kth[:, 0])
+            tied = np.flatnonzero(np.take_along_axis(d2, part[:, k:k + 1], axis=1)[:, 0] == kth[:, 0])
             if tied.size:
                 rank = np.where(d2[tied] < kth[tied], -1, np.where(d2[tied] == kth[tied], cidx[sq_local[tied]], _FAR))
                 fixed = np.zeros((tied.shape[0], cmax), bool)
