@@ -7,65 +7,88 @@ contract (:class:`FieldEstimator`: :class:`OrdinaryKriging`, :class:`UniversalKr
 :class:`FieldSettings`) and its stored form (:func:`field_to_bytes`, :func:`field_from_bytes`).
 Helpers (empirical variograms, cross-validation statistics, merging repeats, checks) are
 imported from their own modules.
+
+The names below are imported on first use (PEP 562), so importing one submodule does not load
+the whole package.
 """
 
-from mapper.field.build import METHODS, build_field
-from mapper.field.estimator import FieldEstimator
-from mapper.field.fit import VariogramFit, fit_variogram
-from mapper.field.idw import IDW
-from mapper.field.kriging import OrdinaryKriging, UniversalKriging
-from mapper.field.model import CVStats, FieldGrid
-from mapper.field.physical import PhysicalModel, SourceSeed
-from mapper.field.rbf import RBF
-from mapper.field.settings import (
-    BorrowedStd,
-    CalibrationStats,
-    FieldSettings,
-    IDWSettings,
-    KrigingSettings,
-    LocalScale,
-    LooSplit,
-    MethodSettings,
-    PhysicsSettings,
-    RBFSettings,
-    SourceSummary,
-    SplitStats,
-    VariogramChoice,
-    VariogramFitSummary,
-)
-from mapper.field.storage import field_from_bytes, field_to_bytes
-from mapper.field.variogram import MODELS, Variogram
+from __future__ import annotations
 
-__all__ = [
-    "IDW",
-    "METHODS",
-    "MODELS",
-    "RBF",
-    "BorrowedStd",
-    "CVStats",
-    "CalibrationStats",
-    "FieldEstimator",
-    "FieldGrid",
-    "FieldSettings",
-    "IDWSettings",
-    "KrigingSettings",
-    "LocalScale",
-    "LooSplit",
-    "MethodSettings",
-    "OrdinaryKriging",
-    "PhysicalModel",
-    "PhysicsSettings",
-    "RBFSettings",
-    "SourceSeed",
-    "SourceSummary",
-    "SplitStats",
-    "UniversalKriging",
-    "Variogram",
-    "VariogramChoice",
-    "VariogramFit",
-    "VariogramFitSummary",
-    "build_field",
-    "field_from_bytes",
-    "field_to_bytes",
-    "fit_variogram",
-]
+import importlib
+from typing import TYPE_CHECKING
+
+_WHERE = {
+    "METHODS": "mapper.field.build",
+    "build_field": "mapper.field.build",
+    "FieldEstimator": "mapper.field.estimator",
+    "VariogramFit": "mapper.field.fit",
+    "fit_variogram": "mapper.field.fit",
+    "IDW": "mapper.field.idw",
+    "OrdinaryKriging": "mapper.field.kriging",
+    "UniversalKriging": "mapper.field.kriging",
+    "CVStats": "mapper.field.model",
+    "FieldGrid": "mapper.field.model",
+    "PhysicalModel": "mapper.field.physical",
+    "SourceSeed": "mapper.field.physical",
+    "RBF": "mapper.field.rbf",
+    "BorrowedStd": "mapper.field.settings",
+    "CalibrationStats": "mapper.field.settings",
+    "FieldSettings": "mapper.field.settings",
+    "IDWSettings": "mapper.field.settings",
+    "KrigingSettings": "mapper.field.settings",
+    "LocalScale": "mapper.field.settings",
+    "LooSplit": "mapper.field.settings",
+    "MethodSettings": "mapper.field.settings",
+    "PhysicsSettings": "mapper.field.settings",
+    "RBFSettings": "mapper.field.settings",
+    "SourceSummary": "mapper.field.settings",
+    "SplitStats": "mapper.field.settings",
+    "VariogramChoice": "mapper.field.settings",
+    "VariogramFitSummary": "mapper.field.settings",
+    "field_from_bytes": "mapper.field.storage",
+    "field_to_bytes": "mapper.field.storage",
+    "MODELS": "mapper.field.variogram",
+    "Variogram": "mapper.field.variogram",
+}
+
+__all__ = sorted(_WHERE)
+
+if TYPE_CHECKING:  # for type checkers and editors: the eager form
+    from mapper.field.build import METHODS, build_field  # noqa: F401
+    from mapper.field.estimator import FieldEstimator  # noqa: F401
+    from mapper.field.fit import VariogramFit, fit_variogram  # noqa: F401
+    from mapper.field.idw import IDW  # noqa: F401
+    from mapper.field.kriging import OrdinaryKriging, UniversalKriging  # noqa: F401
+    from mapper.field.model import CVStats, FieldGrid  # noqa: F401
+    from mapper.field.physical import PhysicalModel, SourceSeed  # noqa: F401
+    from mapper.field.rbf import RBF  # noqa: F401
+    from mapper.field.settings import (  # noqa: F401
+        BorrowedStd,
+        CalibrationStats,
+        FieldSettings,
+        IDWSettings,
+        KrigingSettings,
+        LocalScale,
+        LooSplit,
+        MethodSettings,
+        PhysicsSettings,
+        RBFSettings,
+        SourceSummary,
+        SplitStats,
+        VariogramChoice,
+        VariogramFitSummary,
+    )
+    from mapper.field.storage import field_from_bytes, field_to_bytes  # noqa: F401
+    from mapper.field.variogram import MODELS, Variogram  # noqa: F401
+
+
+def __getattr__(name: str):
+    if name in _WHERE:
+        value = getattr(importlib.import_module(_WHERE[name]), name)
+        globals()[name] = value
+        return value
+    raise AttributeError(f"module {__name__!r} has no attribute {name!r}")
+
+
+def __dir__() -> list[str]:
+    return sorted([*globals(), *_WHERE])
