@@ -10,15 +10,19 @@ Colours and signs come from :mod:`mapper.features.colour_scale`.
 from __future__ import annotations
 
 from dataclasses import dataclass
+from typing import TYPE_CHECKING
 
 import numpy as np
-from scipy.spatial import cKDTree
 
 from mapper.app.palette import FEATURE_COLOURS, hex_rgb
 from mapper.app.raster import Markers
 from mapper.features.colour_scale import colours_rgb, display_sign, uncertainty_scale
 from mapper.readings.model import Reading
-from mapper.workflow import LiveResult
+
+if TYPE_CHECKING:
+    from scipy.spatial import cKDTree
+
+    from mapper.workflow import LiveResult
 
 #: The live map colours places within this many grid spacings of a reading; farther out it
 #: would show extrapolation (common practice, no source).
@@ -93,7 +97,7 @@ def prepare_live_map(
         estimate=display_sign(sign_convention) * np.asarray(grid.estimate, float),
         std=std,
         std_scale_v_per_m=uncertainty_scale(std),
-        reach=cKDTree(np.unique(xy, axis=0)) if len(xy) else None,
+        reach=_tree(np.unique(xy, axis=0)) if len(xy) else None,
         reach_m=REACH_SPACINGS * spacing_m,
     )
 
@@ -209,3 +213,10 @@ class MarkerBook:
 
 
 __all__ = ["REACH_SPACINGS", "FreeMarkers", "LiveMap", "MarkerBook", "prepare_live_map"]
+
+
+def _tree(xy: np.ndarray) -> cKDTree:
+    """A k-d tree of positions (metres); scipy's spatial module is loaded on first use."""
+    from scipy.spatial import cKDTree
+
+    return cKDTree(xy)

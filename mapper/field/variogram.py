@@ -17,9 +17,6 @@ from dataclasses import asdict, dataclass
 from functools import lru_cache
 
 import numpy as np
-from scipy.optimize import brentq
-from scipy.spatial.distance import cdist
-from scipy.special import gammaln, kv
 
 from mapper.errors import MapperError
 from mapper.field.checks import choose, positive
@@ -34,6 +31,8 @@ _E3 = float(np.exp(-3.0))
 
 def _matern_corr_unit(u: np.ndarray, nu: float) -> np.ndarray:
     """Matérn correlation 2^(1-nu)/Gamma(nu) u^nu K_nu(u) for scaled lag ``u`` >= 0."""
+    from scipy.special import gammaln, kv  # the Matérn model only: loaded when used
+
     u = np.asarray(u, dtype=float)
     out = np.ones_like(u)
     pos = u > 0
@@ -54,6 +53,8 @@ def matern_practical_factor(nu: float) -> float:
     """
     if nu == 0.5:
         return 3.0
+    from scipy.optimize import brentq
+
     return float(brentq(lambda s: _matern_corr_unit(np.array([s]), nu)[0] - _E3, 1e-6, 200.0))
 
 
@@ -152,6 +153,8 @@ class Variogram:
 
     def lags(self, a: np.ndarray, b: np.ndarray) -> np.ndarray:
         """Anisotropic lag distances between every row of ``a`` and ``b``, metres."""
+        from scipy.spatial.distance import cdist
+
         return cdist(self.transform(a), self.transform(b))
 
     # ----------------------------------------------------------------------------- values
