@@ -14,8 +14,9 @@ the whole package.
 
 from __future__ import annotations
 
-import importlib
 from typing import TYPE_CHECKING
+
+from mapper.lazy import lazy_exports
 
 _WHERE = {
     "METHODS": "mapper.field.build",
@@ -82,13 +83,4 @@ if TYPE_CHECKING:  # for type checkers and editors: the eager form
     from mapper.field.variogram import MODELS, Variogram  # noqa: F401
 
 
-def __getattr__(name: str):
-    if name in _WHERE:
-        value = getattr(importlib.import_module(_WHERE[name]), name)
-        globals()[name] = value
-        return value
-    raise AttributeError(f"module {__name__!r} has no attribute {name!r}")
-
-
-def __dir__() -> list[str]:
-    return sorted([*globals(), *_WHERE])
+__getattr__, __dir__ = lazy_exports(__name__, _WHERE)

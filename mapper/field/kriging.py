@@ -398,11 +398,8 @@ class _Kriging:
             if on_data is not None:
                 kt[on_data] += vg.nugget
             a[:, k + p + 1:, :k] = kt
-            tail = np.arange(k, size)
-            a[:, tail, tail] = _HUGE
-            try:
-                low = np.linalg.cholesky(a)
-            except np.linalg.LinAlgError:  # some set's covariance is not numerically positive definite
+            low = _factor_bordered(a, k)
+            if low is None:
                 self._bordered_sets(block, ids, rows, valid, tt, est, var)
                 continue
             self._combine(low[:, k:k + p, :k], low[:, k + p, :k], low[:, k + p + 1:, :k], block.target[rows],
@@ -423,11 +420,8 @@ class _Kriging:
         a[:, :kr, :kr] = schur[sq[:, None, None], rest[:, :, None], rest[:, None, :]]
         a[:, kr:kr + p + 1, :kr] = np.swapaxes(bred[sq[:, None], rest], 1, 2)
         a[:, kr + p + 1:, :kr] = kred[rsq[:, :, None], rsl[:, :, None], rest[:, None, :]]
-        tail = np.arange(kr, size)
-        a[:, tail, tail] = _HUGE
-        try:
-            low = np.linalg.cholesky(a)
-        except np.linalg.LinAlgError:  # some set's covariance is not numerically positive definite
+        low = _factor_bordered(a, kr)
+        if low is None:
             self._bordered_sets(block, ids, rows, valid, tt, est, var)
             return
         # Core and rest parts stacked: G = L^-1 F (nb, p, k), g = L^-1 z (nb, k), y = L^-1 c (nb, w, k).
@@ -504,6 +498,19 @@ class _Kriging:
             err, std = _loo_global(self)
             return err[ids], std[ids]
         return _loo_local(self, ids)
+
+
+def _factor_bordered(a: np.ndarray, k: int) -> np.ndarray | None:
+    """Cholesky factors of a stack of bordered matrices whose first ``k`` rows and columns are a
+    covariance: the rest of the diagonal is set to a huge value (it never enters the first ``k``
+    columns of the factor, which hold ``L`` and ``L^-1 B``). None when some member is not
+    numerically positive definite."""
+    tail = np.arange(k, a.shape[-1])
+    a[:, tail, tail] = _HUGE
+    try:
+        return np.linalg.cholesky(a)
+    except np.linalg.LinAlgError:
+        return None
 
 
 def _batches(count: np.ndarray, ids: np.ndarray, size0: int):
