@@ -42,6 +42,7 @@ from mapper.field.inputs import (
     usable,
 )
 from mapper.field.physical import seeds_from_site
+from mapper.notes import NOTE_LEVELS, Note
 from mapper.plan.grid import PlanPoint
 from mapper.readings.model import Conditions, CorrectedReading, Reading
 from mapper.site.model import Site
@@ -50,34 +51,6 @@ from mapper.units import BareNumber, canonical_unit, resolve_threshold
 
 #: Remarks that say where the field model came from start with this.
 FIELD_NOTE_PREFIX = "field model:"
-#: Levels of a :class:`Note`.
-NOTE_LEVELS = ("remark", "warning", "reason")
-
-
-@dataclass(frozen=True)
-class Note:
-    """Something a run has to tell the user.
-
-    Attributes
-    ----------
-    level : str
-        ``remark`` (how the result was made: printed to stdout), ``warning`` (something to check:
-        stderr) or ``reason`` (why there is no field model: shown where the map would be).
-    text : str
-        The sentence.
-    """
-
-    level: str
-    text: str
-
-    def __post_init__(self) -> None:
-        if self.level not in NOTE_LEVELS:
-            raise ValueError(f"note level {self.level!r} is not one of {NOTE_LEVELS}")
-
-    def __str__(self) -> str:
-        return self.text
-
-
 @dataclass(frozen=True)
 class Products:
     """Everything an export or report is made of, in site metres and SI units.
@@ -363,6 +336,7 @@ def survey_products(
     if method is not None and method not in METHODS:
         raise MapperError(f"unknown method {method!r}; accepted: {', '.join(METHODS)}")
     site = survey.site
+    plan = survey.plan
     unit = canonical_unit(unit or survey.display_unit)
     threshold = (resolve_threshold(threshold_v_per_m, survey.display_unit) if threshold_v_per_m is not None
                  else float(survey.threshold_v_per_m))
@@ -394,7 +368,7 @@ def survey_products(
     if grid is not None:
         step("hotspots, keep-away checks and advice")
         findings = analyse(
-            grid, site, readings, threshold, unit=unit, planned=survey.plan.points
+            grid, site, readings, threshold, unit=unit, planned=plan.points
         )
     if reason:
         notes.append(Note("reason", reason))
@@ -411,7 +385,7 @@ def survey_products(
             if isinstance(threshold_v_per_m, BareNumber) else "command line"),
         operator=survey.get("operator", "") or "",
         created_utc=survey.get("created_utc", "") or "",
-        spacing_m=survey.plan.spacing_m,
+        spacing_m=plan.spacing_m,
         readings=readings,
         controls=controls,
         reading_extra=survey.reading_origins(r.reading.id for r in readings),
