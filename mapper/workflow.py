@@ -16,11 +16,10 @@ by :func:`mapper.corrections.pipeline.load_meters`.
 
 from __future__ import annotations
 
-import bisect
 import time
 from collections.abc import Callable, Mapping, Sequence
 from dataclasses import dataclass, field
-from datetime import datetime
+from datetime import datetime, timedelta
 from pathlib import Path
 
 import numpy as np
@@ -164,13 +163,25 @@ class Products:
 
     def nearest_conditions(self, moment: datetime) -> Conditions | None:
         """The condition note nearest in time that gives RH or temperature."""
+        return self.nearest_conditions_all([moment])[0]
+
+    def nearest_conditions_all(self, moments: Sequence[datetime]) -> list[Conditions | None]:
+        """:meth:`nearest_conditions` of many times at once (the earlier of two notes equally near)."""
         notes = [c for c in self.conditions if c.rh_percent is not None or c.temperature_c is not None]
-        if not notes:
-            return None
-        times = [c.time for c in notes]
-        k = bisect.bisect_left(times, moment)
-        near = [notes[i] for i in (k - 1, k) if 0 <= i < len(notes)]
-        return min(near, key=lambda c: abs((c.time - moment).total_seconds()))
+        if not notes or not len(moments):
+            return [None] * len(moments)
+        one_us = timedelta(microseconds=1)
+        epoch = notes[0].time
+        t = np.array([(m - epoch) // one_us for m in moments], dtype=np.int64)
+        at = np.array([(c.time - epoch) // one_us for c in notes], dtype=np.int64)
+        k = np.searchsorted(at, t, side="left")
+        before = np.clip(k - 1, 0, len(notes) - 1)
+        after = np.clip(k, 0, len(notes) - 1)
+        far = np.iinfo(np.int64).max
+        gap_before = np.where(k > 0, np.abs(t - at[before]), far)
+        gap_after = np.where(k < len(notes), np.abs(at[after] - t), far)
+        pick = np.where(gap_before <= gap_after, before, after)
+        return [notes[i] for i in pick.tolist()]
 
     def condition_ranges(self) -> dict[str, tuple[float, float] | None]:
         """``rh_percent`` and ``temperature_c`` as (min, max) over the notes, or ``None``."""

@@ -9,7 +9,6 @@ from __future__ import annotations
 import math
 from collections.abc import Sequence
 from dataclasses import dataclass
-from datetime import timedelta
 
 import geopandas as gpd
 import numpy as np
@@ -74,25 +73,6 @@ READING_COLUMNS = (
 )
 
 
-def _nearest_conditions(products: Products, times: Sequence) -> list:
-    """:meth:`Products.nearest_conditions` for many times at once (the same choice: the note
-    nearest in time that gives RH or temperature, the earlier one of two equally near)."""
-    notes = [c for c in products.conditions if c.rh_percent is not None or c.temperature_c is not None]
-    if not notes or not len(times):
-        return [None] * len(times)
-    one_us = timedelta(microseconds=1)
-    epoch = notes[0].time
-    t = np.array([(m - epoch) // one_us for m in times], dtype=np.int64)
-    at = np.array([(c.time - epoch) // one_us for c in notes], dtype=np.int64)
-    k = np.searchsorted(at, t, side="left")
-    before = np.clip(k - 1, 0, len(notes) - 1)
-    after = np.clip(k, 0, len(notes) - 1)
-    gap_before = np.where(k > 0, np.abs(t - at[before]), np.iinfo(np.int64).max)
-    gap_after = np.where(k < len(notes), np.abs(at[after] - t), np.iinfo(np.int64).max)
-    pick = np.where(gap_before <= gap_after, before, after)
-    return [notes[i] for i in pick.tolist()]
-
-
 @dataclass(frozen=True)
 class ReadingTable:
     """The readings' attributes (:data:`READING_COLUMNS`) and export positions, made once per
@@ -127,7 +107,7 @@ def reading_table(products: Products) -> ReadingTable:
     readings = products.readings
     raw = [c.reading for c in readings]
     n = len(raw)
-    conds = _nearest_conditions(products, [r.time for r in raw])
+    conds = products.nearest_conditions_all([r.time for r in raw])
     extras = [products.reading_extra.get(r.id, {}) for r in raw]
     stamps: dict = {}
 

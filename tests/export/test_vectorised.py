@@ -3,7 +3,7 @@
 References: shapely's own per-geometry :func:`shapely.affinity.affine_transform` and
 :class:`shapely.geometry.Point`; pandas' :meth:`pandas.Timestamp.isoformat`; for the nearest
 condition note, the definition written out (the note nearest in time giving RH or temperature,
-the earlier of two equally near).
+the earlier of two equally near), one at a time or all at once.
 """
 
 from __future__ import annotations
@@ -20,7 +20,7 @@ from shapely.geometry import LineString, Point, Polygon
 
 from mapper.export.crs import affine_xy, transform_all
 from mapper.export.csv_out import _cell, _column
-from mapper.export.layers import READING_COLUMNS, _nearest_conditions, reading_table, readings_layer
+from mapper.export.layers import READING_COLUMNS, reading_table, readings_layer
 from mapper.readings.model import Conditions
 
 
@@ -67,10 +67,11 @@ def test_nearest_conditions_all_at_once(hall):
     moments = [t0 + timedelta(minutes=m, microseconds=u) for m in (-5, 0, 5, 10, 10, 15, 30, 30, 39, 60)
                for u in (0, 1, 999_999)]
     moments.append(t0 + timedelta(minutes=30))  # exactly between b and c: the earlier one
-    got = _nearest_conditions(products, moments)
+    got = products.nearest_conditions_all(moments)
     assert got == [_nearest_by_definition(notes, m) for m in moments]
     assert got[-1].note == "b"
-    assert _nearest_conditions(replace(products, conditions=()), moments[:2]) == [None, None]
+    assert [products.nearest_conditions(m) for m in moments] == got
+    assert replace(products, conditions=()).nearest_conditions_all(moments[:2]) == [None, None]
 
 
 def test_csv_time_texts_are_pandas_isoformat():
