@@ -32,13 +32,13 @@ def _cell(value: object) -> object:
 _PLAIN = {str, int, bool, float, type(None)}
 
 
-def _utc_texts(values: list) -> list | None:
-    """:meth:`pandas.Timestamp.isoformat` of UTC times (``None`` empty) for a whole column at once,
-    or ``None`` when the column holds anything else (then each cell is made by :func:`_cell`)."""
-    if not values or not all(v is None or (type(v) is pd.Timestamp and v.unit == "us" and v.tzname() == "UTC")
-                             for v in values):
-        return None
-    stamps = pd.DatetimeIndex(values)
+def _utc_texts(stamps: pd.DatetimeIndex) -> list:
+    """What :func:`_cell` makes of each time (:meth:`pandas.Timestamp.isoformat`, empty for ``NaT``)
+    for a whole column of UTC microsecond times at once."""
+    if stamps.isna().all():
+        return [""] * len(stamps)
+    if str(stamps.dtype) != "datetime64[us, UTC]":
+        return [_cell(None if t is pd.NaT else t) for t in stamps]
     naive = stamps.tz_localize(None).values.astype("datetime64[us]")
     whole = np.datetime_as_string(naive, unit="s")
     fraction = np.datetime_as_string(naive, unit="us")
@@ -47,11 +47,10 @@ def _utc_texts(values: list) -> list | None:
     return text.tolist()
 
 
-def _column(values: list) -> list:
+def _column(values) -> list:
     """One column's cells: the values themselves when :func:`_cell` would leave them as they are."""
-    texts = _utc_texts(values) if pd.Timestamp in set(map(type, values)) else None
-    if texts is not None:
-        return texts
+    if isinstance(values, pd.DatetimeIndex):
+        return _utc_texts(values)
     types = set(map(type, values))
     if types <= _PLAIN:
         if float not in types:

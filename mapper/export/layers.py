@@ -71,6 +71,15 @@ READING_COLUMNS = (
     "corrections", "used_in_model", "x_site_m", "y_site_m", "source", "recorded_utc",
     "rh_percent", "temperature_c", "conditions_utc", "conditions_note",
 )
+#: Columns of :data:`READING_COLUMNS` holding times (UTC; empty where unknown).
+TIME_COLUMNS = ("time_utc", "recorded_utc", "conditions_utc")
+
+
+def _times(stamps: list) -> pd.DatetimeIndex:
+    """UTC timestamps (or ``None``) as one index, of microseconds unless all are unknown (then of
+    the unit pandas gives an empty column, as the layer always had)."""
+    index = pd.DatetimeIndex(pd.to_datetime(stamps, utc=True, format="ISO8601"))
+    return index.as_unit("us") if index.notna().any() else index
 
 
 @dataclass(frozen=True)
@@ -80,9 +89,10 @@ class ReadingTable:
 
     Attributes
     ----------
-    columns : dict of str to list
-        One list per column of :data:`READING_COLUMNS`, one entry per corrected field reading
-        (Python values; times as UTC ``pandas.Timestamp`` or ``None``).
+    columns : dict of str to sequence
+        One sequence per column of :data:`READING_COLUMNS`, one entry per corrected field reading:
+        lists of Python values, and for :data:`TIME_COLUMNS` a UTC ``pandas.DatetimeIndex``
+        (``NaT`` where unknown).
     x_export, y_export : ndarray
         Positions in the export CRS, metres.
     """
@@ -96,7 +106,8 @@ class ReadingTable:
 
     def records(self) -> list[dict]:
         """One dict per reading, keys :data:`READING_COLUMNS`."""
-        cols = [self.columns[c] for c in READING_COLUMNS]
+        cols = [[None if t is pd.NaT else t for t in self.columns[c]] if c in TIME_COLUMNS else self.columns[c]
+                for c in READING_COLUMNS]
         return [dict(zip(READING_COLUMNS, row, strict=True)) for row in zip(*cols, strict=True)]
 
 
@@ -126,7 +137,7 @@ def reading_table(products: Products) -> ReadingTable:
         "display_unit": [unit] * n,
         "entered_value": [r.entered_value for r in raw],
         "entered_unit": [r.entered_unit for r in raw],
-        "time_utc": list(pd.to_datetime([r.time for r in raw], utc=True)) if n else [],
+        "time_utc": _times([r.time for r in raw]),
         "height_m": [r.height_m for r in raw],
         "meter_id": [r.meter_id for r in raw],
         "note": [r.note for r in raw],
@@ -136,10 +147,10 @@ def reading_table(products: Products) -> ReadingTable:
         "x_site_m": [r.x for r in raw],
         "y_site_m": [r.y for r in raw],
         "source": [e.get("source") for e in extras],
-        "recorded_utc": [utc(e.get("recorded_utc")) for e in extras],
+        "recorded_utc": _times([utc(e.get("recorded_utc")) for e in extras]),
         "rh_percent": [c.rh_percent if c else None for c in conds],
         "temperature_c": [c.temperature_c if c else None for c in conds],
-        "conditions_utc": [utc(c.time) if c else None for c in conds],
+        "conditions_utc": _times([utc(c.time) if c else None for c in conds]),
         "conditions_note": [c.note if c else None for c in conds],
     }
     xs, ys = affine_xy(products.crs, columns["x_site_m"], columns["y_site_m"])
@@ -164,7 +175,7 @@ def readings_layer(products: Products, table: ReadingTable | None = None) -> Lay
     table = reading_table(products) if table is None else table
     data = pd.DataFrame({c: table.columns[c] for c in READING_COLUMNS}, columns=list(READING_COLUMNS))
     frame = gpd.GeoDataFrame(data, geometry=shapely.points(table.x_export, table.y_export), crs=products.crs.crs)
-    for col in ("time_utc", "recorded_utc", "conditions_utc"):
+    for col in TIME_COLUMNS:
         frame[col] = pd.to_datetime(frame[col], utc=True, format="ISO8601")
     for col in ("height_m", "rh_percent", "temperature_c"):
         frame[col] = pd.to_numeric(frame[col], errors="coerce").astype(float)
@@ -366,5 +377,5 @@ FIELD_LAYERS = ("contours", "bands", "hotspots", "probable_exceedance", "violati
 #: Layers only written with a physical field model.
 PHYSICS_LAYERS = ("sources",)
 
-__all__ = ["ASSET_COLUMNS", "ASSET_LAYERS", "FIELD_LAYERS", "HOTSPOT_COLUMNS", "READING_COLUMNS", "Layer",
-           "ReadingTable", "all_layers", "asset_layers", "hotspot_record", "reading_records", "reading_table"]
+__all__ = ["ASSET_COLUMNS", "ASSET_LAYERS", "FIELD_LAYERS", "HOTSPOT_COLUMNS", "READING_COLUMNS", "TIME_COLUMNS",
+           "Layer", "ReadingTable", "all_layers", "asset_layers", "hotspot_record", "reading_records", "reading_table"]

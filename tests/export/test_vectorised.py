@@ -78,7 +78,8 @@ def test_csv_time_texts_are_pandas_isoformat():
     stamps = [pd.Timestamp(datetime(2026, 11, 17, 7, 30, s % 60, us, tzinfo=UTC)) for s, us in
               ((0, 0), (5, 1), (59, 999_999), (7, 500_000))]
     values = [*stamps, None]
-    assert _column(values) == [_cell(v) for v in values] == [*(t.isoformat() for t in stamps), ""]
+    column = pd.DatetimeIndex(values, dtype="datetime64[us, UTC]")
+    assert _column(column) == [_cell(v) for v in values] == [*(t.isoformat() for t in stamps), ""]
     mixed = [1.5, float("nan"), None, "x", True, 3]
     assert _column(mixed) == [_cell(v) for v in mixed]
 
