@@ -16,11 +16,10 @@ by :func:`mapper.corrections.pipeline.load_meters`.
 
 from __future__ import annotations
 
-import bisect
 import time
 from collections.abc import Callable, Mapping, Sequence
 from dataclasses import dataclass, field
-from datetime import datetime
+from datetime import datetime, timedelta
 from pathlib import Path
 
 import numpy as np
@@ -42,6 +41,7 @@ from mapper.field.inputs import (
     usable,
 )
 from mapper.field.physical import seeds_from_site
+from mapper.notes import NOTE_LEVELS, Note
 from mapper.plan.grid import PlanPoint
 from mapper.readings.model import Conditions, CorrectedReading, Reading
 from mapper.site.model import Site
@@ -50,34 +50,6 @@ from mapper.units import BareNumber, canonical_unit, resolve_threshold
 
 #: Remarks that say where the field model came from start with this.
 FIELD_NOTE_PREFIX = "field model:"
-#: Levels of a :class:`Note`.
-NOTE_LEVELS = ("remark", "warning", "reason")
-
-
-@dataclass(frozen=True)
-class Note:
-    """Something a run has to tell the user.
-
-    Attributes
-    ----------
-    level : str
-        ``remark`` (how the result was made: printed to stdout), ``warning`` (something to check:
-        stderr) or ``reason`` (why there is no field model: shown where the map would be).
-    text : str
-        The sentence.
-    """
-
-    level: str
-    text: str
-
-    def __post_init__(self) -> None:
-        if self.level not in NOTE_LEVELS:
-            raise ValueError(f"note level {self.level!r} is not one of {NOTE_LEVELS}")
-
-    def __str__(self) -> str:
-        return self.text
-
-
 @dataclass(frozen=True)
 class Products:
     """Everything an export or report is made of, in site metres and SI units.
@@ -191,13 +163,25 @@ class Products:
 
     def nearest_conditions(self, moment: datetime) -> Conditions | None:
         """The condition note nearest in time that gives RH or temperature."""
+        return self.nearest_conditions_all([moment])[0]
+
+    def nearest_conditions_all(self, moments: Sequence[datetime]) -> list[Conditions | None]:
+        """:meth:`nearest_conditions` of many times at once (the earlier of two notes equally near)."""
         notes = [c for c in self.conditions if c.rh_percent is not None or c.temperature_c is not None]
-        if not notes:
-            return None
-        times = [c.time for c in notes]
-        k = bisect.bisect_left(times, moment)
-        near = [notes[i] for i in (k - 1, k) if 0 <= i < len(notes)]
-        return min(near, key=lambda c: abs((c.time - moment).total_seconds()))
+        if not notes or not len(moments):
+            return [None] * len(moments)
+        one_us = timedelta(microseconds=1)
+        epoch = notes[0].time
+        t = np.array([(m - epoch) // one_us for m in moments], dtype=np.int64)
+        at = np.array([(c.time - epoch) // one_us for c in notes], dtype=np.int64)
+        k = np.searchsorted(at, t, side="left")
+        before = np.clip(k - 1, 0, len(notes) - 1)
+        after = np.clip(k, 0, len(notes) - 1)
+        far = np.iinfo(np.int64).max
+        gap_before = np.where(k > 0, np.abs(t - at[before]), far)
+        gap_after = np.where(k < len(notes), np.abs(at[after] - t), far)
+        pick = np.where(gap_before <= gap_after, before, after)
+        return [notes[i] for i in pick.tolist()]
 
     def condition_ranges(self) -> dict[str, tuple[float, float] | None]:
         """``rh_percent`` and ``temperature_c`` as (min, max) over the notes, or ``None``."""
@@ -363,6 +347,7 @@ def survey_products(
     if method is not None and method not in METHODS:
         raise MapperError(f"unknown method {method!r}; accepted: {', '.join(METHODS)}")
     site = survey.site
+    plan = survey.plan
     unit = canonical_unit(unit or survey.display_unit)
     threshold = (resolve_threshold(threshold_v_per_m, survey.display_unit) if threshold_v_per_m is not None
                  else float(survey.threshold_v_per_m))
@@ -394,7 +379,7 @@ def survey_products(
     if grid is not None:
         step("hotspots, keep-away checks and advice")
         findings = analyse(
-            grid, site, readings, threshold, unit=unit, planned=survey.plan.points
+            grid, site, readings, threshold, unit=unit, planned=plan.points
         )
     if reason:
         notes.append(Note("reason", reason))
@@ -411,7 +396,7 @@ def survey_products(
             if isinstance(threshold_v_per_m, BareNumber) else "command line"),
         operator=survey.get("operator", "") or "",
         created_utc=survey.get("created_utc", "") or "",
-        spacing_m=survey.plan.spacing_m,
+        spacing_m=plan.spacing_m,
         readings=readings,
         controls=controls,
         reading_extra=survey.reading_origins(r.reading.id for r in readings),

@@ -19,7 +19,7 @@ from mapper.cli.common import check_output, fmt, say, table, threshold_arg, warn
 from mapper.cli.progress import working
 from mapper.features import compare_fields
 from mapper.features.cautions import CAUTIONS
-from mapper.workflow import survey_file_products
+from mapper.workflow import Products, survey_file_products
 
 
 def register(sub) -> None:
@@ -58,38 +58,11 @@ def run(args) -> int:
         before = survey_file_products(args.before, args.threshold).require_field()
         step("after")
         after = survey_file_products(args.after, args.threshold).require_field()
-    threshold = before.threshold_v_per_m
-    unit = before.display_unit
-    messages = [f"{args.before}: {m}" for m in before.warnings]
-    messages += [f"{args.after}: {m}" for m in after.warnings]
-    if args.threshold is None and not np.isclose(after.threshold_v_per_m, threshold, rtol=1e-9):
-        messages.append(
-            f"the surveys have different thresholds ({fmt(threshold, unit)} and "
-            f"{fmt(after.threshold_v_per_m, unit)}); both compared at the first one's"
-        )
-    cmp = compare_fields(
-        before.grid,
-        after.grid,
-        before.site,
-        after.site,
-        threshold,
-        before.readings,
-        after.readings,
-    )
-    from mapper.export.compare_gpkg import (  # geopandas: load when writing
-        LAYERS,
-        RASTER,
-        write_comparison_gpkg,
-    )
-    from mapper.export.compare_report import write_comparison_report
-    from mapper.export.geojson import crs_statement
-
-    with working("compare") as step:
-        step("writing the GeoPackage")
-        write_comparison_gpkg(out, cmp, before.site, unit)
-        step("drawing the comparison")
-        printed = write_comparison_report(cmp, before, after, pdf, png_path=png)
+    cmp, printed, messages = compare_products(before, after, args.before, args.after, out, pdf, png,
+                                              threshold_given=args.threshold is not None)
     if args.json:
+        from mapper.export.geojson import crs_statement
+
         say(
             json.dumps(
                 {
@@ -110,12 +83,80 @@ def run(args) -> int:
         return 0
     for m in messages:
         warn(m)
+    for line in comparison_lines(cmp, before, after, out, printed):
+        say(line)
+    return 0
+
+
+def compare_products(before: Products, after: Products, before_name: str, after_name: str, out: Path, pdf: Path,
+                     png: Path | None, *, threshold_given: bool):
+    """Compare two surveys' products and write the GeoPackage and the printable comparison.
+
+    Parameters
+    ----------
+    before, after : Products
+        Both surveys' products, with field models, at the same threshold (V/m).
+    before_name, after_name : str
+        The survey files as the user named them (for the warnings).
+    out, pdf : Path
+        GeoPackage and PDF to write.
+    png : Path or None
+        The comparison page as PNG too.
+    threshold_given : bool
+        The threshold was given for both; otherwise differing survey thresholds are warned about.
+
+    Returns
+    -------
+    cmp : Comparison
+        Difference grid and hotspot changes (:func:`mapper.features.compare_fields`).
+    printed : ComparisonReport
+        What the printable comparison wrote.
+    messages : list of str
+        Warnings.
+    """
+    threshold = before.threshold_v_per_m
+    unit = before.display_unit
+    messages = [f"{before_name}: {m}" for m in before.warnings]
+    messages += [f"{after_name}: {m}" for m in after.warnings]
+    if not threshold_given and not np.isclose(after.threshold_v_per_m, threshold, rtol=1e-9):
+        messages.append(
+            f"the surveys have different thresholds ({fmt(threshold, unit)} and "
+            f"{fmt(after.threshold_v_per_m, unit)}); both compared at the first one's"
+        )
+    cmp = compare_fields(
+        before.grid,
+        after.grid,
+        before.site,
+        after.site,
+        threshold,
+        before.readings,
+        after.readings,
+    )
+    from mapper.export.compare_gpkg import write_comparison_gpkg  # geopandas: load when writing
+    from mapper.export.compare_report import write_comparison_report
+
+    with working("compare") as step:
+        step("writing the GeoPackage")
+        write_comparison_gpkg(out, cmp, before.site, unit)
+        step("drawing the comparison")
+        printed = write_comparison_report(cmp, before, after, pdf, png_path=png)
+    return cmp, printed, messages
+
+
+def comparison_lines(cmp, before: Products, after: Products, out: Path, printed) -> list[str]:
+    """The text of ``mapper compare``, line by line (see :func:`compare_products`)."""
+    from mapper.export.compare_gpkg import LAYERS, RASTER
+
+    threshold = before.threshold_v_per_m
+    unit = before.display_unit
+    lines: list[str] = []
+    add = lines.append
     s = cmp.summary
-    say(f"before     {before.name}  ({before.source}; {before.field_note})")
-    say(f"after      {after.name}  ({after.source}; {after.field_note})")
-    say(f"threshold  |E| >= {fmt(threshold, unit)}")
-    say(f"common     {s.common_area_m2:.1f} m² covered by both")
-    say("")
+    add(f"before     {before.name}  ({before.source}; {before.field_note})")
+    add(f"after      {after.name}  ({after.source}; {after.field_note})")
+    add(f"threshold  |E| >= {fmt(threshold, unit)}")
+    add(f"common     {s.common_area_m2:.1f} m² covered by both")
+    add("")
     if cmp.changes:
         rows = [
             [
@@ -130,8 +171,8 @@ def run(args) -> int:
             ]
             for c in cmp.changes
         ]
-        say("Hotspot changes:")
-        say(
+        add("Hotspot changes:")
+        add(
             table(
                 rows,
                 (
@@ -147,10 +188,10 @@ def run(args) -> int:
             )
         )
     else:
-        say(f"No hotspots in either survey at {fmt(threshold, unit)}.")
-    say("")
-    say("hotspots   " + ", ".join(f"{n} {k}" for k, n in s.counts.items()))
-    say(
+        add(f"No hotspots in either survey at {fmt(threshold, unit)}.")
+    add("")
+    add("hotspots   " + ", ".join(f"{n} {k}" for k, n in s.counts.items()))
+    add(
         table(
             [
                 [
@@ -171,16 +212,16 @@ def run(args) -> int:
             else "no rise anywhere")
     fall = (f"largest fall {fmt(-s.max_decrease_v_per_m, unit)}" if s.max_decrease_v_per_m < 0
             else "no fall anywhere")
-    say(
+    add(
         f"difference (after - before): mean {fmt(s.mean_difference_v_per_m, unit)}, mean |d| "
         f"{fmt(s.mean_abs_difference_v_per_m, unit)}, {rise}, {fall}"
     )
-    say(f"wrote      {out} (raster '{RASTER}', layers {', '.join(LAYERS)})")
-    say(f"wrote      {printed.pdf} (before, after and difference maps, changes, cautions)")
+    add(f"wrote      {out} (raster '{RASTER}', layers {', '.join(LAYERS)})")
+    add(f"wrote      {printed.pdf} (before, after and difference maps, changes, cautions)")
     if printed.png is not None:
-        say(f"wrote      {printed.png} (the comparison page)")
-    say("")
-    say("Cautions:")
+        add(f"wrote      {printed.png} (the comparison page)")
+    add("")
+    add("Cautions:")
     for c in CAUTIONS:
-        say(f"  - {c}")
-    return 0
+        add(f"  - {c}")
+    return lines

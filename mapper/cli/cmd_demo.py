@@ -5,7 +5,7 @@ from __future__ import annotations
 from pathlib import Path
 
 from mapper.cli.commands import summary
-from mapper.cli.common import say
+from mapper.cli.common import show
 from mapper.demo import run_demo
 
 
@@ -16,6 +16,6 @@ def register(sub) -> None:
 
 
 def run(args) -> int:
-    for line in run_demo(Path(args.out)):
-        say(line)
+    for note in run_demo(Path(args.out)):
+        show([note])
     return 0

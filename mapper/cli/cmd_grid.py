@@ -2,13 +2,16 @@
 
 from __future__ import annotations
 
+from collections.abc import Callable
+
 from mapper.cli.commands import summary
-from mapper.cli.common import fmt, neighbors_arg, positive_float, say, table, warn
+from mapper.cli.common import fmt, neighbors_arg, positive_float, show, table
 from mapper.cli.progress import working
 from mapper.corrections.pipeline import correct_survey
 from mapper.errors import MapperError
 from mapper.field import METHODS, MODELS, Variogram, field_to_bytes
 from mapper.field.inputs import MIN_FIELD_POSITIONS, distinct_positions, field_inputs
+from mapper.notes import Note
 from mapper.survey.store import Survey
 from mapper.units import field_text_in
 from mapper.workflow import build_survey_field, too_few_positions
@@ -67,24 +70,51 @@ def variogram_from_args(args) -> Variogram | None:
 
 def run(args) -> int:
     variogram = variogram_from_args(args)
-    method = args.method
-    if args.height is not None and method not in ("auto", "physics"):
+    store_field(args.survey, args.method, cell_m=args.cell, neighbors=args.neighbors, variogram=variogram,
+                height_m=args.height, emit=lambda note: show([note]))
+    return 0
+
+
+def store_field(survey_path: str, method: str = "auto", *, cell_m: float | None = None,
+                neighbors: int | None = None, variogram: Variogram | None = None,
+                height_m: float | None = None, emit: Callable[[Note], None]) -> None:
+    """Build the field model of a survey's corrected readings and store it (``mapper grid``).
+
+    Parameters
+    ----------
+    survey_path : str
+        Survey file, as the user named it.
+    method : str
+        One of :data:`mapper.field.METHODS`; ``auto`` becomes ``kriging`` with a variogram.
+    cell_m : float, optional
+        Grid cell, metres.
+    neighbors : int, optional
+        Moving-neighbourhood size.
+    variogram : Variogram, optional
+        Used as is, not fitted.
+    height_m : float, optional
+        Map the field at this height above the floor, metres (physical model only).
+    emit : callable
+        Called with each :class:`~mapper.notes.Note` as it comes: the corrections' warnings, then
+        what was stored and how well it predicts.
+    """
+    if height_m is not None and method not in ("auto", "physics"):
         raise MapperError(f"--height needs the physical model (--method physics); method {method} "
                           "interpolates at the meter's height only")
     if variogram is not None and method == "auto":
         method = "kriging"
-    with Survey.open(args.survey, write=True) as survey:
+    with Survey.open(survey_path, write=True) as survey:
         corrected = correct_survey(survey)
         for message in corrected.warnings:
-            warn(message)
+            emit(Note("warning", message))
         xy, values = field_inputs(corrected.readings)
         positions = distinct_positions(xy)
         if positions < MIN_FIELD_POSITIONS:
             raise MapperError(too_few_positions(positions), where=str(survey.path))
         with working("grid") as step:
             step(f"field model ({method}, {positions} positions)")
-            grid = build_survey_field(survey.site, corrected.readings, method=method, cell_m=args.cell,
-                                      neighbors=args.neighbors, variogram=variogram, height_m=args.height)
+            grid = build_survey_field(survey.site, corrected.readings, method=method, cell_m=cell_m,
+                                      neighbors=neighbors, variogram=variogram, height_m=height_m)
         summary = {
             "method": grid.method,
             "reason": grid.reason,
@@ -94,7 +124,11 @@ def run(args) -> int:
         }
         survey.save_field(grid.method, summary, field_to_bytes(grid))
         unit = survey.display_unit
-    say(f"field model stored in {args.survey}: {grid.method}, {len(grid.x)} x {len(grid.y)} cells of {grid.cell_m:g} m")
+
+    def say(text: str) -> None:
+        emit(Note("remark", text))
+
+    say(f"field model stored in {survey_path}: {grid.method}, {len(grid.x)} x {len(grid.y)} cells of {grid.cell_m:g} m")
     say(f"from {len(values)} corrected readings at {positions} positions "
         f"(corrections: {', '.join(corrected.applied) or 'none'})")
     say(f"why: {field_text_in(grid.reason, unit)}")
@@ -128,8 +162,7 @@ def run(args) -> int:
                 rms = "-" if st.rms_standardized is None else f"{st.rms_standardized:.2f}"
                 say(f"  {label}: {st.n} readings, RMSE {fmt(st.rmse_v_per_m, unit)}, standardised RMS {rms}")
     if phys is not None:
-        say(f"physical model: {len(phys.sources)} source(s); see 'mapper sources {args.survey}'")
+        say(f"physical model: {len(phys.sources)} source(s); see 'mapper sources {survey_path}'")
     std = settings.std if settings is not None else None
     if std is not None and std.source:
         say(f"standard deviation: {std.source}")
-    return 0

@@ -10,8 +10,9 @@ from pathlib import Path
 from zoneinfo import ZoneInfo, ZoneInfoNotFoundError
 
 from mapper.cli.commands import summary
-from mapper.cli.common import positive_float, say, unit_arg, warn
+from mapper.cli.common import positive_float, say, show, unit_arg, warn
 from mapper.errors import MapperError
+from mapper.notes import Note
 from mapper.readings.importing import (
     is_conditions_csv,
     parse_conditions_csv,
@@ -66,40 +67,74 @@ def run(args) -> int:
         if not args.track:
             raise MapperError("--log needs --track TRACK: positions to place the log's readings by time")
         return _import_log(args, tz)
-    vector = is_vector_readings(args.file)
-    if args.layer is not None and not vector:
-        raise MapperError("--layer goes with a GeoPackage (or another GIS file) of readings", where=args.file)
-    with Survey.open(args.survey, write=True) as survey:
-        common = {"unit": args.unit or None, "sign_convention": survey.sign_convention,
+    show(import_file(args.survey, args.file, unit=args.unit, skip_bad=args.skip_bad, tz=tz, crs=args.crs,
+                     layer=args.layer, again=args.again))
+    return 0
+
+
+def import_file(survey_path: str, file: str, *, unit: str | None = None, skip_bad: bool = False, tz=None,
+                crs: str | None = None, layer: str | None = None, again: bool = False) -> list[Note]:
+    """Import readings (CSV or GIS point layer) or condition notes (CSV) into a survey, all or nothing.
+
+    Parameters
+    ----------
+    survey_path : str
+        Survey file.
+    file : str
+        Readings or conditions file.
+    unit : str, optional
+        Unit of values without a unit column.
+    skip_bad : bool
+        Import the good rows and write the bad ones beside the input.
+    tz : tzinfo, optional
+        Time zone of times written without an offset (default UTC).
+    crs : str, optional
+        CRS of projected positions.
+    layer : str, optional
+        Layer of a GeoPackage with several.
+    again : bool
+        Import a file whose readings the survey already holds.
+
+    Returns
+    -------
+    list of Note
+        What was imported, and a warning for rows left out.
+    """
+    out: list[Note] = []
+    vector = is_vector_readings(file)
+    if layer is not None and not vector:
+        raise MapperError("--layer goes with a GeoPackage (or another GIS file) of readings", where=file)
+    with Survey.open(survey_path, write=True) as survey:
+        common = {"unit": unit or None, "sign_convention": survey.sign_convention,
                   "plan_labels": [p.label for p in survey.plan.points], "meters": list(survey.meters()),
-                  "skip_bad": args.skip_bad, "tz": tz, "crs": args.crs}
+                  "skip_bad": skip_bad, "tz": tz, "crs": crs}
         if vector:
-            parsed = parse_readings_vector(args.file, survey.site, layer=args.layer, **common)
-        elif is_conditions_csv(args.file):
-            if args.crs:
-                raise MapperError("--crs goes with positions; a conditions file has none", where=args.file)
-            notes = parse_conditions_csv(args.file, tz)
+            parsed = parse_readings_vector(file, survey.site, layer=layer, **common)
+        elif is_conditions_csv(file):
+            if crs:
+                raise MapperError("--crs goes with positions; a conditions file has none", where=file)
+            notes = parse_conditions_csv(file, tz)
             survey.add_condition_notes([(n.rh_percent, n.temperature_c, n.note, n.time) for n in notes])
-            say(f"imported {plural(len(notes), 'condition note')} into {survey.path}")
-            return 0
+            return [Note("remark", f"imported {plural(len(notes), 'condition note')} into {survey.path}")]
         else:
-            parsed = parse_readings_csv(args.file, survey.site, **common)
+            parsed = parse_readings_csv(file, survey.site, **common)
         delay = float(os.environ.get("MAPPER_TEST_IMPORT_DELAY", "0") or 0)
         if delay:  # test hook: slow the open transaction down so a test can kill the process in it
             survey.conn.set_progress_handler(lambda: _slow_down(survey, delay), 1000)
         label, noun = ("feature", "feature") if vector else ("line", "data row")
         if not parsed.readings:
-            out = write_rejected(args.file, parsed.rejected, label=label) if parsed.rejected else None
-            what = (f"all {len(parsed.rejected)} {noun}s are bad (see {out})" if out
+            rejected = write_rejected(file, parsed.rejected, label=label) if parsed.rejected else None
+            what = (f"all {len(parsed.rejected)} {noun}s are bad (see {rejected})" if rejected
                     else "the file has no data rows")
-            raise MapperError(f"nothing imported: {what}; the survey is unchanged", where=args.file)
-        digest = _refuse_repeat(survey, args, [str(p) for p in input_files(args.file)])
-        stored = survey.add_readings(parsed.readings, source=os.path.basename(args.file), digest=digest)
+            raise MapperError(f"nothing imported: {what}; the survey is unchanged", where=file)
+        digest = _refuse_repeat(survey, again, file, [str(p) for p in input_files(file)])
+        stored = survey.add_readings(parsed.readings, source=os.path.basename(file), digest=digest)
         if parsed.rejected:
-            out = write_rejected(args.file, parsed.rejected, label=label)
-            warn(f"{len(parsed.rejected)} bad {'features' if vector else 'rows'} not imported; see {out}")
-        say(f"imported {_count(len(stored), 'reading')} into {survey.path}")
-    return 0
+            rejected = write_rejected(file, parsed.rejected, label=label)
+            out.append(Note("warning", f"{len(parsed.rejected)} bad {'features' if vector else 'rows'} not "
+                                       f"imported; see {rejected}"))
+        out.append(Note("remark", f"imported {_count(len(stored), 'reading')} into {survey.path}"))
+    return out
 
 
 def _slow_down(survey: Survey, delay: float) -> int:
@@ -134,7 +169,7 @@ def _import_log(args, tz) -> int:
             warn(line)
         if not result.readings:
             raise MapperError("no log reading could be placed on the site; nothing imported", where=args.file)
-        digest = _refuse_repeat(survey, args, [args.file, args.track])
+        digest = _refuse_repeat(survey, args.again, args.file, [args.file, args.track])
         stored = survey.add_readings(result.readings, source=os.path.basename(args.file), digest=digest)
         say(f"imported {_count(len(stored), 'reading')} from the log into {survey.path}")
     return 0
@@ -144,17 +179,17 @@ def _count(n: int, noun: str) -> str:
     return f"{n} {noun}" + ("" if n == 1 else "s")
 
 
-def _refuse_repeat(survey: Survey, args, paths: list[str]) -> str:
+def _refuse_repeat(survey: Survey, again: bool, where: str, paths: list[str]) -> str:
     """Content hash of the input files; refuses files this survey already imported, unless --again."""
     sha = hashlib.sha256()
     for path in paths:
         sha.update(Path(path).read_bytes())
     digest = sha.hexdigest()
     earlier = survey.imported_before(digest)
-    if earlier and not args.again:
+    if earlier and not again:
         raise MapperError(
             f"these readings were already imported into this survey on {earlier} (same file content); "
             "nothing imported — pass --again to import them a second time",
-            where=args.file,
+            where=where,
         )
     return digest

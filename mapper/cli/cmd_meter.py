@@ -7,10 +7,11 @@ import json
 from datetime import UTC, date, datetime
 
 from mapper.cli.commands import summary
-from mapper.cli.common import fmt, say, table, unit_arg, warn
+from mapper.cli.common import fmt, say, show, table, unit_arg, warn
 from mapper.corrections.calibration import check_meter_file, read_calibration_csv
 from mapper.corrections.meter import MeterProfile
 from mapper.errors import MapperError
+from mapper.notes import Note
 from mapper.survey.store import Survey
 from mapper.units import LENGTH_UNITS, parse_field, parse_number
 
@@ -130,23 +131,45 @@ def run_add(args) -> int:
         )
         if getattr(args, name) is not None
     }
-    with Survey.open(args.survey, write=True) as survey:
-        existing = _profiles(survey).get(args.meter)
+    show(add_meter(args.survey, args.meter, changes))
+    return 0
+
+
+def add_meter(survey_path: str, meter_id: str, changes: dict) -> list[Note]:
+    """Add a meter profile to a survey, or change fields of an existing one (``mapper meter add``).
+
+    Parameters
+    ----------
+    survey_path : str
+        Survey file, as the user named it.
+    meter_id : str
+        Meter id.
+    changes : dict
+        Profile fields to set (:class:`MeterProfile` keys; dates as ``datetime.date``, distance in
+        metres, offset in V/m).
+
+    Returns
+    -------
+    list of Note
+        What was stored, and a warning when the calibration is due.
+    """
+    with Survey.open(survey_path, write=True) as survey:
+        existing = _profiles(survey).get(meter_id)
         if existing and not changes:
             raise MapperError(
-                f"meter {args.meter!r} already exists and no field to change was given "
+                f"meter {meter_id!r} already exists and no field to change was given "
                 "(e.g. --gain, --due); nothing stored"
             )
-        base = existing.to_dict() if existing else {"id": args.meter}
+        base = existing.to_dict() if existing else {"id": meter_id}
         for key, value in changes.items():
             base[key] = value.isoformat() if isinstance(value, date) else value
         profile = MeterProfile.from_dict(base)
         survey.save_meter(profile.id, profile.to_dict())
-    say(f"{'updated' if existing else 'added'} meter {profile.id} in {args.survey}")
+    out = [Note("remark", f"{'updated' if existing else 'added'} meter {profile.id} in {survey_path}")]
     due = profile.due_warning(datetime.now(UTC).date())
     if due and profile.due_date is not None:
-        warn(due)
-    return 0
+        out.append(Note("warning", due))
+    return out
 
 
 def run_list(args) -> int:

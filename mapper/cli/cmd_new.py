@@ -3,8 +3,9 @@
 from __future__ import annotations
 
 from mapper.cli.commands import summary
-from mapper.cli.common import positive_float, role_arg, say, threshold_arg, unit_arg, warn
+from mapper.cli.common import positive_float, role_arg, show, threshold_arg, unit_arg
 from mapper.errors import MapperError
+from mapper.notes import Note
 from mapper.plan.grid import DEFAULT_SPACING_M, LAYOUTS
 from mapper.survey.create import DEFAULT_THRESHOLD_V_PER_M, create_survey
 from mapper.units import SIGN_CONVENTIONS, format_field, resolve_threshold
@@ -48,6 +49,37 @@ def register(sub) -> None:
     p.set_defaults(func=run)
 
 
+def created_notes(survey) -> list[Note]:
+    """What ``mapper new`` says about a survey it created: site warnings, site, georeference, plan, units.
+
+    Parameters
+    ----------
+    survey : mapper.survey.store.Survey
+        The survey just created (open).
+
+    Returns
+    -------
+    list of Note
+    """
+    site, plan = survey.site, survey.plan
+    out = [Note("warning", message) for message in site.warnings]
+    out.append(Note("remark", f"created {survey.path} for site {site.name!r} ({site.area_m2:.1f} m²)"))
+    if site.georef:
+        g = site.georef
+        fit = (f"residuals {', '.join(f'{r:.3f}' for r in g.residuals_m)} m, RMS {g.rms_m:.3f} m"
+               if g.residuals_m else "fitted exactly (two control points leave no residual to check)")
+        out.append(Note("remark", f"georeference: {g.crs}, scale {g.scale:.6f}, rotation {g.rotation_deg:.3f}°, {fit}"))
+    else:
+        out.append(Note("remark", "georeference: none (local site grid in metres)"))
+    out.append(Note("remark",
+                    f"plan: {len(plan.points)} points, {plan.layout} grid at {plan.spacing_m:g} m, "
+                    f"covering {plan.covered_area_m2():.0f} m², walk {plan.walk_length_m:.0f} m "
+                    f"from {plan.points[0].label} to {plan.points[-1].label}"))
+    out.append(Note("remark", f"unit {survey.display_unit}, sign {survey.sign_convention}, "
+                              f"threshold {format_field(survey.threshold_v_per_m, survey.display_unit)}"))
+    return out
+
+
 def run(args) -> int:
     if args.site_crs and args.site_units:
         raise MapperError("--site-units goes with a drawing in site units; with --site-crs the drawing "
@@ -66,24 +98,5 @@ def run(args) -> int:
         site_crs=args.site_crs,
         control_points=args.control_points,
     ) as survey:
-        site, plan = survey.site, survey.plan
-        for message in site.warnings:
-            warn(message)
-        say(f"created {survey.path} for site {site.name!r} ({site.area_m2:.1f} m²)")
-        if site.georef:
-            g = site.georef
-            fit = (f"residuals {', '.join(f'{r:.3f}' for r in g.residuals_m)} m, RMS {g.rms_m:.3f} m"
-                   if g.residuals_m else "fitted exactly (two control points leave no residual to check)")
-            say(f"georeference: {g.crs}, scale {g.scale:.6f}, rotation {g.rotation_deg:.3f}°, {fit}")
-        else:
-            say("georeference: none (local site grid in metres)")
-        say(
-            f"plan: {len(plan.points)} points, {plan.layout} grid at {plan.spacing_m:g} m, "
-            f"covering {plan.covered_area_m2():.0f} m², walk {plan.walk_length_m:.0f} m "
-            f"from {plan.points[0].label} to {plan.points[-1].label}"
-        )
-        say(
-            f"unit {survey.display_unit}, sign {survey.sign_convention}, "
-            f"threshold {format_field(survey.threshold_v_per_m, survey.display_unit)}"
-        )
+        show(created_notes(survey))
     return 0

@@ -49,12 +49,19 @@ def run(args) -> int:
         from mapper.export.report import write_report  # matplotlib: load only when drawing
 
         result = write_report(products, args.out, png_path=png, history=history, current=current)
-    say(f"wrote {result.pdf} ({result.pages} pages)")
-    if result.png is not None:
-        say(f"wrote {result.png} (the map alone)")
-    if products.grid is None:
-        say(f"no field map: {products.no_field_reason}")
+    for line in written_lines(result, products):
+        say(line)
     return 0
+
+
+def written_lines(result, products) -> list[str]:
+    """What ``mapper report`` wrote, one line per file (``result``: :class:`~mapper.export.report.ReportResult`)."""
+    out = [f"wrote {result.pdf} ({result.pages} pages)"]
+    if result.png is not None:
+        out.append(f"wrote {result.png} (the map alone)")
+    if products.grid is None:
+        out.append(f"no field map: {products.no_field_reason}")
+    return out
 
 
 def _history(survey: Survey, url: str):

@@ -104,6 +104,15 @@ def print_notes(products) -> None:
             warn(note.text)
 
 
+def show(notes) -> None:
+    """Print notes (:class:`mapper.workflow.Note`) in order: remarks to stdout, warnings to stderr."""
+    for note in notes:
+        if note.level == "warning":
+            warn(note.text)
+        else:
+            say(note.text)
+
+
 def check_output(path: str, suffix: str, option: str | None = None) -> Path:
     """Refuse an output name or folder before any work is done."""
     return output_path(path, suffix, option)

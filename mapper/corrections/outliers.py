@@ -26,7 +26,6 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 import numpy as np
-from scipy.spatial import cKDTree
 
 #: Scale factor making the MAD a consistent estimate of a normal standard deviation (1/0.6745).
 MAD_TO_SIGMA = 1.4826
@@ -83,6 +82,8 @@ class OutlierCheck:
 
 def _neighbour_indices(xy: np.ndarray, k: int) -> np.ndarray:
     """Indices of each point's ``k`` nearest *other* points (self removed by index)."""
+    from scipy.spatial import cKDTree  # about a quarter of a second to import: only when checking
+
     n = xy.shape[0]
     _, idx = cKDTree(xy).query(xy, k=k + 1)
     idx = np.atleast_2d(idx)

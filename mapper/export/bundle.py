@@ -8,7 +8,8 @@ from pathlib import Path
 from mapper.atomic_file import atomic_path
 from mapper.export.csv_out import write_readings_csv
 from mapper.export.gpkg import GpkgResult, write_geopackage
-from mapper.export.raster import write_geotiff
+from mapper.export.layers import reading_table
+from mapper.export.raster import north_up, write_geotiff
 from mapper.units import format_field
 from mapper.wording import plural
 from mapper.workflow import Products
@@ -95,7 +96,11 @@ def export_products(products: Products, gpkg_path: str | Path, *, csv_path: str 
     ExportResult
     """
     gpkg_path = Path(gpkg_path)
-    gpkg = write_geopackage(products, gpkg_path)
+    # Each made once: the readings' attributes (layer and CSV), the north-up field (GeoPackage
+    # rasters and GeoTIFF).
+    table = reading_table(products)
+    resampled = None if products.grid is None else north_up(products.grid, products.crs, products.site.outline)
+    gpkg = write_geopackage(products, gpkg_path, table=table, resampled=resampled)
     tif_path = gpkg_path.with_suffix(".tif")
     tif = None
     removed = False
@@ -104,6 +109,7 @@ def export_products(products: Products, gpkg_path: str | Path, *, csv_path: str 
             products.grid, products.crs, tif_path, outline=products.site.outline,
             tags={"threshold_v_per_m": f"{products.threshold_v_per_m:.10g}", "site": products.name,
                   "sign_convention": "physics (positive: field pointing up)"},
+            resampled=resampled,
         )
         write_raster_styles(products, tif_path)
     elif tif_path.exists():
@@ -111,7 +117,7 @@ def export_products(products: Products, gpkg_path: str | Path, *, csv_path: str 
         removed = True
         for side in (tif_path.with_suffix(".qml"), tif_path.with_suffix(".sld")):
             side.unlink(missing_ok=True)
-    csv = write_readings_csv(products, csv_path) if csv_path is not None else None
+    csv = write_readings_csv(products, csv_path, table) if csv_path is not None else None
     return ExportResult(gpkg, tif, csv, removed)
 
 

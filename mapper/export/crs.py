@@ -101,12 +101,36 @@ def export_crs(site: Site) -> ExportCRS:
     return ExportCRS(CRS.from_wkt(LOCAL_CRS_WKT), None)
 
 
-def transform_all(geoms, ecrs: ExportCRS) -> list[BaseGeometry]:
-    """Move a sequence of site-metre geometries into the export CRS."""
+def affine_xy(ecrs: ExportCRS, x, y) -> tuple[np.ndarray, np.ndarray]:
+    """Site metres (arrays) to export CRS coordinates by the same arithmetic as
+    :func:`shapely.affinity.affine_transform` (``x' = a x + b y + xoff``), so geometries moved
+    one at a time or all at once get the same coordinates to the last bit."""
+    x = np.asarray(x, dtype=float)
+    y = np.asarray(y, dtype=float)
     if ecrs.georef is None:
-        return list(geoms)
-    a = ecrs.affine()
-    return [affinity.affine_transform(g, a) if not shapely.is_empty(g) else g for g in geoms]
+        return x, y
+    a, b, d, e, xoff, yoff = ecrs.affine()
+    return a * x + b * y + xoff, d * x + e * y + yoff
 
 
-__all__ = ["ExportCRS", "export_crs", "transform_all"]
+def transform_all(geoms, ecrs: ExportCRS) -> np.ndarray:
+    """Move a sequence of site-metre geometries into the export CRS, all at once.
+
+    Returns
+    -------
+    ndarray of shapely geometries
+        In input order; empty geometries stay empty.
+    """
+    arr = np.empty(len(geoms), dtype=object)
+    arr[:] = list(geoms)
+    if ecrs.georef is None or not len(arr):
+        return arr
+
+    def move(coords: np.ndarray) -> np.ndarray:
+        xp, yp = affine_xy(ecrs, coords[:, 0], coords[:, 1])
+        return np.column_stack([xp, yp, *coords.T[2:]])  # a height, if any, is kept
+
+    return shapely.transform(arr, move, include_z=None)
+
+
+__all__ = ["ExportCRS", "affine_xy", "export_crs", "transform_all"]

@@ -19,10 +19,10 @@ from mapper.atomic_file import atomic_path, output_path
 from mapper.export import styles as st
 from mapper.export.columns import write_data_columns
 from mapper.export.coverage import Coverage, write_coverage
-from mapper.export.layers import Layer, all_layers
+from mapper.export.layers import Layer, ReadingTable, all_layers
 from mapper.export.metadata import METADATA_TABLE, metadata_rows, write_gdal_metadata
 from mapper.export.project import ProjectLayer, write_project
-from mapper.export.raster import north_up
+from mapper.export.raster import NorthUp, north_up
 from mapper.workflow import Products
 
 
@@ -81,11 +81,14 @@ def layer_styles(products: Products) -> list[st.LayerStyle]:
     return out
 
 
-def field_coverages(products: Products) -> list[Coverage]:
-    """The field estimate and its standard deviation as north-up coverages (empty without a field)."""
+def field_coverages(products: Products, resampled: NorthUp | None = None) -> list[Coverage]:
+    """The field estimate and its standard deviation as north-up coverages (empty without a field).
+
+    ``resampled`` is the field model's :func:`~mapper.export.raster.north_up` when already made.
+    """
     if products.grid is None:
         return []
-    r = north_up(products.grid, products.crs, products.site.outline)
+    r = north_up(products.grid, products.crs, products.site.outline) if resampled is None else resampled
     how = "resampled bilinearly onto a north-up grid" if r.resampled else "the field model's grid"
     out = [Coverage("field_estimate", r.estimate, r.transform, "field estimate, V/m",
                     f"electric field estimate at the meter height, V/m, physics sign (positive: pointing up); "
@@ -134,7 +137,8 @@ def _write_layer(path: Path, layer: Layer) -> None:
     )
 
 
-def write_geopackage(products: Products, path: str | Path, *, exported_utc: str | None = None) -> GpkgResult:
+def write_geopackage(products: Products, path: str | Path, *, exported_utc: str | None = None,
+                     table: ReadingTable | None = None, resampled: NorthUp | None = None) -> GpkgResult:
     """Write every layer of a survey's products to a GeoPackage.
 
     Parameters
@@ -145,6 +149,10 @@ def write_geopackage(products: Products, path: str | Path, *, exported_utc: str 
         Target ``.gpkg``; replaced if it exists.
     exported_utc : str, optional
         Time stamp recorded in the metadata; default now.
+    table : ReadingTable, optional
+        The readings' attributes when already made (:func:`~mapper.export.layers.reading_table`).
+    resampled : NorthUp, optional
+        The field model on the north-up grid when already made (:func:`~mapper.export.raster.north_up`).
 
     Returns
     -------
@@ -152,7 +160,7 @@ def write_geopackage(products: Products, path: str | Path, *, exported_utc: str 
     """
     path = output_path(path, ".gpkg")
     counts: dict[str, int] = {}
-    layers = all_layers(products)
+    layers = all_layers(products, table)
     with atomic_path(path) as tmp:
         for layer in layers:
             _write_layer(tmp, layer)
@@ -164,7 +172,7 @@ def write_geopackage(products: Products, path: str | Path, *, exported_utc: str 
         )
         pyogrio.write_dataframe(meta, tmp, layer=METADATA_TABLE, driver="GPKG")
         counts[METADATA_TABLE] = len(meta)
-        for cov in field_coverages(products):
+        for cov in field_coverages(products, resampled):
             write_coverage(tmp, cov, products.crs.wkt)
             counts[cov.table] = int(np.isfinite(cov.values).sum())
         styles = [s for s in layer_styles(products) if s.table in counts]

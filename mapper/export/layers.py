@@ -11,14 +11,14 @@ from collections.abc import Sequence
 from dataclasses import dataclass
 
 import geopandas as gpd
+import numpy as np
 import pandas as pd
 import shapely
-from shapely.geometry import Point
 
-from mapper.export.crs import transform_all
+from mapper.export.crs import affine_xy, transform_all
 from mapper.export.styles import band_colors
 from mapper.features.sources import source_records
-from mapper.units import from_si
+from mapper.units import FIELD_UNITS, canonical_unit, from_si
 from mapper.workflow import Products, is_excluded
 
 
@@ -71,52 +71,111 @@ READING_COLUMNS = (
     "corrections", "used_in_model", "x_site_m", "y_site_m", "source", "recorded_utc",
     "rh_percent", "temperature_c", "conditions_utc", "conditions_note",
 )
+#: Columns of :data:`READING_COLUMNS` holding times (UTC; empty where unknown).
+TIME_COLUMNS = ("time_utc", "recorded_utc", "conditions_utc")
+
+
+def _times(stamps: list) -> pd.DatetimeIndex:
+    """UTC timestamps (or ``None``) as one index, of microseconds unless all are unknown (then of
+    the unit pandas gives an empty column, as the layer always had)."""
+    index = pd.DatetimeIndex(pd.to_datetime(stamps, utc=True, format="ISO8601"))
+    return index.as_unit("us") if index.notna().any() else index
+
+
+@dataclass(frozen=True)
+class ReadingTable:
+    """The readings' attributes (:data:`READING_COLUMNS`) and export positions, made once per
+    export and shared by the ``readings`` layer and the CSV.
+
+    Attributes
+    ----------
+    columns : dict of str to sequence
+        One sequence per column of :data:`READING_COLUMNS`, one entry per corrected field reading:
+        lists of Python values, and for :data:`TIME_COLUMNS` a UTC ``pandas.DatetimeIndex``
+        (``NaT`` where unknown).
+    x_export, y_export : ndarray
+        Positions in the export CRS, metres.
+    """
+
+    columns: dict
+    x_export: np.ndarray
+    y_export: np.ndarray
+
+    def __len__(self) -> int:
+        return len(self.x_export)
+
+    def records(self) -> list[dict]:
+        """One dict per reading, keys :data:`READING_COLUMNS`."""
+        cols = [[None if t is pd.NaT else t for t in self.columns[c]] if c in TIME_COLUMNS else self.columns[c]
+                for c in READING_COLUMNS]
+        return [dict(zip(READING_COLUMNS, row, strict=True)) for row in zip(*cols, strict=True)]
+
+
+def reading_table(products: Products) -> ReadingTable:
+    """The attributes of every corrected field reading, column by column (see :class:`ReadingTable`)."""
+    unit = products.display_unit
+    factor = FIELD_UNITS[canonical_unit(unit)]
+    readings = products.readings
+    raw = [c.reading for c in readings]
+    n = len(raw)
+    conds = products.nearest_conditions_all([r.time for r in raw])
+    extras = [products.reading_extra.get(r.id, {}) for r in raw]
+    stamps: dict = {}
+
+    def utc(value):
+        if value not in stamps:
+            stamps[value] = _utc(value)
+        return stamps[value]
+
+    columns = {
+        "reading_id": [r.id for r in raw],
+        "point": [r.point for r in raw],
+        "kind": [r.kind for r in raw],
+        "value_v_per_m": [c.value_v_per_m for c in readings],
+        "raw_v_per_m": [r.value_v_per_m for r in raw],
+        "value_display": [c.value_v_per_m / factor for c in readings],
+        "display_unit": [unit] * n,
+        "entered_value": [r.entered_value for r in raw],
+        "entered_unit": [r.entered_unit for r in raw],
+        "time_utc": _times([r.time for r in raw]),
+        "height_m": [r.height_m for r in raw],
+        "meter_id": [r.meter_id for r in raw],
+        "note": [r.note for r in raw],
+        "flags": [",".join(dict.fromkeys([*c.reading.flags, *c.flags])) for c in readings],
+        "corrections": [",".join(c.corrections) for c in readings],
+        "used_in_model": [not is_excluded(c) for c in readings],
+        "x_site_m": [r.x for r in raw],
+        "y_site_m": [r.y for r in raw],
+        "source": [e.get("source") for e in extras],
+        "recorded_utc": _times([utc(e.get("recorded_utc")) for e in extras]),
+        "rh_percent": [c.rh_percent if c else None for c in conds],
+        "temperature_c": [c.temperature_c if c else None for c in conds],
+        "conditions_utc": _times([utc(c.time) if c else None for c in conds]),
+        "conditions_note": [c.note if c else None for c in conds],
+    }
+    xs, ys = affine_xy(products.crs, columns["x_site_m"], columns["y_site_m"])
+    return ReadingTable(columns, xs, ys)
 
 
 def reading_records(products: Products) -> list[dict]:
     """One dict per corrected field reading with every stored attribute (see :data:`READING_COLUMNS`)."""
-    unit = products.display_unit
-    out = []
-    for c in products.readings:
-        r = c.reading
-        cond = products.nearest_conditions(r.time)
-        extra = products.reading_extra.get(r.id, {})
-        flags = list(dict.fromkeys([*r.flags, *c.flags]))
-        out.append({
-            "reading_id": r.id,
-            "point": r.point,
-            "kind": r.kind,
-            "value_v_per_m": c.value_v_per_m,
-            "raw_v_per_m": r.value_v_per_m,
-            "value_display": from_si(c.value_v_per_m, unit),
-            "display_unit": unit,
-            "entered_value": r.entered_value,
-            "entered_unit": r.entered_unit,
-            "time_utc": pd.Timestamp(r.time).tz_convert("UTC"),
-            "height_m": r.height_m,
-            "meter_id": r.meter_id,
-            "note": r.note,
-            "flags": ",".join(flags),
-            "corrections": ",".join(c.corrections),
-            "used_in_model": not is_excluded(c),
-            "x_site_m": r.x,
-            "y_site_m": r.y,
-            "source": extra.get("source"),
-            "recorded_utc": _utc(extra.get("recorded_utc")),
-            "rh_percent": cond.rh_percent if cond else None,
-            "temperature_c": cond.temperature_c if cond else None,
-            "conditions_utc": _utc(cond.time) if cond else None,
-            "conditions_note": cond.note if cond else None,
-        })
-    return out
+    return reading_table(products).records()
 
 
-def readings_layer(products: Products) -> Layer:
-    """Corrected field readings as points."""
-    records = reading_records(products)
-    geoms = [Point(c.reading.x, c.reading.y) for c in products.readings]
-    frame = _frame(records, geoms, products, READING_COLUMNS)
-    for col in ("time_utc", "recorded_utc", "conditions_utc"):
+def readings_layer(products: Products, table: ReadingTable | None = None) -> Layer:
+    """Corrected field readings as points.
+
+    Parameters
+    ----------
+    products : Products
+        The survey's products.
+    table : ReadingTable, optional
+        The readings' attributes when already made (:func:`reading_table`).
+    """
+    table = reading_table(products) if table is None else table
+    data = pd.DataFrame({c: table.columns[c] for c in READING_COLUMNS}, columns=list(READING_COLUMNS))
+    frame = gpd.GeoDataFrame(data, geometry=shapely.points(table.x_export, table.y_export), crs=products.crs.crs)
+    for col in TIME_COLUMNS:
         frame[col] = pd.to_datetime(frame[col], utc=True, format="ISO8601")
     for col in ("height_m", "rh_percent", "temperature_c"):
         frame[col] = pd.to_numeric(frame[col], errors="coerce").astype(float)
@@ -271,7 +330,7 @@ def advice_layer(products: Products) -> Layer:
     records = [{"rank": s.rank, "reason": s.reason, "why": s.why, "estimate_v_per_m": s.estimate_v_per_m,
                 "std_v_per_m": s.std_v_per_m, "p_exceed": s.p_exceed, "gap_m": s.gap_m, "point": s.point,
                 "x_site_m": s.x, "y_site_m": s.y} for s in f.advice]
-    frame = _frame(records, [Point(s.x, s.y) for s in f.advice], products,
+    frame = _frame(records, shapely.points([(s.x, s.y) for s in f.advice]) if f.advice else [], products,
                    ("rank", "reason", "why", "estimate_v_per_m", "std_v_per_m", "p_exceed", "gap_m", "point",
                     "x_site_m", "y_site_m"))
     for col in ("std_v_per_m", "p_exceed", "gap_m"):
@@ -299,9 +358,12 @@ def sources_layer(products: Products) -> Layer:
                  "standard errors, peak field at the meter height (V/m)")
 
 
-def all_layers(products: Products) -> list[Layer]:
-    """Every layer the products allow: the base layers always, field layers with a field model."""
-    layers = [readings_layer(products), site_layer(products), zones_layer(products), *asset_layers(products)]
+def all_layers(products: Products, table: ReadingTable | None = None) -> list[Layer]:
+    """Every layer the products allow: the base layers always, field layers with a field model.
+
+    ``table`` is the readings' attributes when already made (:func:`reading_table`).
+    """
+    layers = [readings_layer(products, table), site_layer(products), zones_layer(products), *asset_layers(products)]
     if products.has_field:
         layers += [contours_layer(products), bands_layer(products), hotspots_layer(products),
                    probable_layer(products), violations_layer(products), advice_layer(products)]
@@ -315,5 +377,5 @@ FIELD_LAYERS = ("contours", "bands", "hotspots", "probable_exceedance", "violati
 #: Layers only written with a physical field model.
 PHYSICS_LAYERS = ("sources",)
 
-__all__ = ["ASSET_COLUMNS", "ASSET_LAYERS", "FIELD_LAYERS", "HOTSPOT_COLUMNS", "READING_COLUMNS", "Layer",
-           "all_layers", "asset_layers", "hotspot_record", "reading_records"]
+__all__ = ["ASSET_COLUMNS", "ASSET_LAYERS", "FIELD_LAYERS", "HOTSPOT_COLUMNS", "READING_COLUMNS", "TIME_COLUMNS",
+           "Layer", "ReadingTable", "all_layers", "asset_layers", "hotspot_record", "reading_records", "reading_table"]

@@ -190,7 +190,7 @@ def overview_factors(width: int, height: int) -> list[int]:
 
 
 def write_geotiff(grid: FieldGrid, ecrs: ExportCRS, path: str | Path, *, outline: BaseGeometry,
-                  tags: dict | None = None) -> Path:
+                  tags: dict | None = None, resampled: NorthUp | None = None) -> Path:
     """Write the field model as a north-up two-band float32 GeoTIFF.
 
     Parameters
@@ -205,6 +205,8 @@ def write_geotiff(grid: FieldGrid, ecrs: ExportCRS, path: str | Path, *, outline
         Site outline, site metres.
     tags : dict, optional
         Extra dataset tags (text values), e.g. method and threshold.
+    resampled : NorthUp, optional
+        :func:`north_up` of these arguments when already made.
 
     Returns
     -------
@@ -213,7 +215,7 @@ def write_geotiff(grid: FieldGrid, ecrs: ExportCRS, path: str | Path, *, outline
     path = output_path(path)
     if np.shape(grid.estimate) != (len(grid.y), len(grid.x)) or np.shape(grid.std) != np.shape(grid.estimate):
         raise MapperError(f"grid arrays have shape {np.shape(grid.estimate)}; expected {(len(grid.y), len(grid.x))}")
-    r = north_up(grid, ecrs, outline)
+    r = north_up(grid, ecrs, outline) if resampled is None else resampled
     height, width = r.estimate.shape
     profile = {
         "driver": "GTiff", "width": width, "height": height, "count": 2, "dtype": "float32",

@@ -7,9 +7,6 @@ from collections.abc import Sequence
 from dataclasses import dataclass
 
 import numpy as np
-from pyproj import CRS, Transformer
-from pyproj.aoi import AreaOfInterest
-from pyproj.database import query_utm_crs_info
 
 from mapper.errors import MapperError
 
@@ -105,6 +102,9 @@ def utm_crs_for(lon: float, lat: float) -> str:
     lon, lat : float
         WGS 84 longitude and latitude, degrees.
     """
+    from pyproj.aoi import AreaOfInterest  # pyproj only when fitting: reading a site needs none
+    from pyproj.database import query_utm_crs_info
+
     infos = query_utm_crs_info(
         datum_name="WGS 84",
         area_of_interest=AreaOfInterest(lon, lat, lon, lat),
@@ -135,6 +135,8 @@ def fit_similarity(
     Georef
         The fitted transform with per-point residuals in metres.
     """
+    from pyproj import CRS, Transformer
+
     xy = np.asarray(site_xy, dtype=float)
     ll = np.asarray(lonlat, dtype=float)
     if len(xy) < 2:

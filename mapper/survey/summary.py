@@ -3,12 +3,22 @@
 from __future__ import annotations
 
 from collections import Counter
+from collections.abc import Sequence
 
+from mapper.readings.model import Reading
 from mapper.survey.store import Survey
 
 
-def summarise(survey: Survey) -> dict:
+def summarise(survey: Survey, readings: Sequence[Reading] | None = None) -> dict:
     """A JSON-ready summary of a survey.
+
+    Parameters
+    ----------
+    survey : Survey
+        An open survey.
+    readings : sequence of Reading, optional
+        The survey's current readings of every kind (``survey.readings(kind=None)``) when the
+        caller has them already; read here otherwise.
 
     Returns
     -------
@@ -21,7 +31,7 @@ def summarise(survey: Survey) -> dict:
     """
     site = survey.site
     plan = survey.plan
-    everything = survey.readings(kind=None)
+    everything = survey.readings(kind=None) if readings is None else list(readings)
     field = [r for r in everything if r.kind == "field"]
     visited = {r.point for r in field if r.point}
     times = sorted(r.time for r in everything)
