@@ -10,6 +10,7 @@ and each redraws itself if what it shows changed. The live refit
 from __future__ import annotations
 
 import time
+from typing import TYPE_CHECKING
 
 from textual import on, work
 from textual.app import ComposeResult
@@ -44,7 +45,9 @@ from mapper.errors import MapperError
 from mapper.readings.serial_meter import MeterLine, SerialMeterReader
 from mapper.units import format_field
 from mapper.wording import plural
-from mapper.workflow import LiveResult, live_products
+
+if TYPE_CHECKING:
+    from mapper.workflow import LiveResult
 
 #: Wait after a reading before the refit starts, seconds: the frame saying "saved" is drawn
 #: first, and quick successive readings share one refit.
@@ -198,6 +201,8 @@ class MainScreen(Screen):
 
     @work(thread=True, exclusive=True, group="refit", description="live refit")
     def _refit_worker(self, readings: list, threshold_v_per_m: float, meters: dict) -> None:
+        from mapper.workflow import live_products  # the field engine loads here, not before the first screen
+
         worker = get_current_worker()
         s = self.session
         result = live_products(

@@ -10,6 +10,7 @@ from __future__ import annotations
 
 import time
 from dataclasses import dataclass
+from typing import TYPE_CHECKING
 
 from rich.text import Text
 from textual.app import ComposeResult
@@ -22,7 +23,10 @@ from mapper.app.session import DRY_AIR_RH_PERCENT, ConditionsSummary, PlaceSumma
 from mapper.survey.store import utc_now
 from mapper.units import format_field, from_si
 from mapper.wording import plural
-from mapper.workflow import MIN_FIELD_POSITIONS, LiveResult
+
+if TYPE_CHECKING:
+    from mapper.workflow import LiveResult
+from mapper.field.inputs import MIN_FIELD_POSITIONS
 
 #: How often the clocks are redrawn, seconds.
 TICK_S = 1.0
