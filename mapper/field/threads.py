@@ -29,7 +29,6 @@ _GETTERS = ("openblas_get_num_threads", "scipy_openblas_get_num_threads", "scipy
             "openblas_get_num_threads64_")
 _LOCK = threading.RLock()
 _LIBS: list[tuple[object, object]] | None = None
-_DEPTH = [0]
 
 
 def _find(lib: ctypes.CDLL, names: tuple[str, ...]):
@@ -77,27 +76,39 @@ def current() -> list[int]:
     return [int(get()) for _, get in _libraries()]
 
 
+def free_cores() -> int:
+    """Cores not kept busy by other programs: usable cores minus the others' load, at least 1.
+
+    The others' load is the 1-minute load average less one (the calling thread itself). A
+    heuristic of ours: the load average lags, so a core freed a moment ago still counts as busy.
+    """
+    try:
+        cores = len(os.sched_getaffinity(0))
+    except AttributeError:  # pragma: no cover - not Linux
+        cores = os.cpu_count() or 1
+    try:
+        others = max(0.0, os.getloadavg()[0] - 1.0)
+    except OSError:  # pragma: no cover
+        others = 0.0
+    return max(1, min(cores, round(cores - others)))
+
+
 @contextmanager
 def blas_threads(n: int = 1) -> Iterator[None]:
     """Run the ``with`` block with every OpenBLAS on at most ``n`` threads.
 
-    Nested blocks keep the outermost limit; the counts found on entry are restored on exit of the
-    outermost block. The setting is process-wide (OpenBLAS has no other), so it also holds for
-    the block's worker threads.
+    The counts found on entry are restored on exit. The setting is process-wide (OpenBLAS has no
+    other), so it also holds for the block's worker threads; a block inside another one lowers
+    the limit further or leaves it.
     """
     with _LOCK:
         libs = _libraries()
-        outer = _DEPTH[0] == 0
-        before = [int(get()) for _, get in libs] if outer else None
-        if outer:
-            for (setter, _), b in zip(libs, before, strict=True):
-                setter(max(1, min(int(n), b)))
-        _DEPTH[0] += 1
+        before = [int(get()) for _, get in libs]
+        for (setter, _), b in zip(libs, before, strict=True):
+            setter(max(1, min(int(n), b)))
     try:
         yield
     finally:
         with _LOCK:
-            _DEPTH[0] -= 1
-            if outer:
-                for (setter, _), b in zip(libs, before, strict=True):
-                    setter(b)
+            for (setter, _), b in zip(libs, before, strict=True):
+                setter(b)
