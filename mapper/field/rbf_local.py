@@ -138,11 +138,20 @@ class _Job:
     def _squares(self, b, a, e, c, pad, cpos, scale, zc, sets, rows, set_of) -> None:
         """Squares ``a`` to ``e - 1`` (core ``c``): their sets solved, their targets evaluated."""
         k, q, s = self.k, self.q, self.smoothing
-        # Candidates beyond the chunk's longest list are pads only; pads elsewhere sit at the centre
-        # and never enter a set, so their (finite) rows and columns are left as they come.
-        width = int(b.cand.shape[1] - np.argmax(~pad[a:e, ::-1], axis=1).min()) if pad[a:e].any() else b.cand.shape[1]
+        # Only the candidates some set of the chunk uses enter the systems (the core first, as
+        # all sets hold it), compacted to the front of each square's list; what is left over at
+        # the end of a shorter list is never referenced.
+        set_sq = b.square[sets] - a
+        nq = e - a
+        used = np.zeros((nq, b.cand.shape[1]), bool)
+        used[set_sq[:, None], b.colpos[sets]] = True
+        used[:, :c] = True
+        width = int(used.sum(axis=1).max())
+        keep = np.argsort(~used, axis=1, kind="stable")[:, :width]
+        newpos = np.cumsum(used, axis=1) - 1
+        colpos = newpos[set_sq[:, None], b.colpos[sets]]  # (ns, k), ascending, core first
         centre = b.centre[a:e]
-        pts = cpos[a:e, :width]
+        pts = np.take_along_axis(cpos[a:e], keep[:, :, None], axis=1)
         pm = monomials((pts - centre[:, None, :]) / scale[a:e, None, None], self.degree)  # (nq, width, q)
         dx = pts[:, :, None, 0] - pts[:, None, :, 0]
         dy = pts[:, :, None, 1] - pts[:, None, :, 1]
@@ -153,7 +162,7 @@ class _Job:
         if s != 0.0:
             diag = np.arange(width)
             kk[:, diag, diag] += s
-        z = zc[a:e, :width]
+        z = np.take_along_axis(zc[a:e], keep, axis=1)
         parts = None
         if c >= q:
             sv = np.linalg.svd(pm[:, :c], compute_uv=False)
@@ -164,12 +173,11 @@ class _Job:
         coef = np.empty((sets.shape[0], k))
         lam = np.empty((sets.shape[0], q))
         for i in range(0, sets.shape[0], _SET_CHUNK):
-            ids = sets[i:i + _SET_CHUNK]
-            sq = b.square[ids] - a
+            sl = slice(i, i + _SET_CHUNK)
             if parts is None:
-                coef[i:i + _SET_CHUNK], lam[i:i + _SET_CHUNK] = _direct(kk, pm, z, sq, b.colpos[ids])
+                coef[sl], lam[sl] = _direct(kk, pm, z, set_sq[sl], colpos[sl])
             else:
-                coef[i:i + _SET_CHUNK], lam[i:i + _SET_CHUNK] = _reduced(parts, sq, b.colpos[ids, c:] - c, c)
+                coef[sl], lam[sl] = _reduced(parts, set_sq[sl], colpos[sl, c:] - c, c)
         # Each target from its own set's weights and polynomial.
         ls = loc[set_of[rows]]
         dist = np.take_along_axis(b.cand_dist[rows], b.colpos[sets[ls]], axis=1)
@@ -204,10 +212,14 @@ def _core_parts(kk: np.ndarray, pm: np.ndarray, z: np.ndarray, c: int):
 def _reduced(parts, sq: np.ndarray, rest: np.ndarray, c: int) -> tuple[np.ndarray, np.ndarray]:
     """Weights (ns, k) and polynomial coefficients (ns, q) of sets from their rest rows only."""
     g, y, schur, rz = parts
-    srr = schur[sq[:, None, None], rest[:, :, None], rest[:, None, :]]
-    wr = solve_batched(srr, rz[sq[:, None], rest])
-    gr = g[sq[:, None, None], np.arange(g.shape[1])[None, :, None], rest[:, None, :]]  # (ns, c + q, r)
-    wc = y[sq] - np.einsum("bjr,br->bj", gr, wr)
+    nq, m, n = g.shape
+    # Gathers through flat indices (one index array each, much faster than three broadcast ones).
+    row = sq[:, None] * n + rest  # (ns, r): flat (square, candidate) of each rest member
+    srr = np.take(schur.reshape(-1), (sq[:, None, None] * n + rest[:, :, None]) * n + rest[:, None, :])
+    wr = solve_batched(srr, np.take(rz.reshape(-1), row))
+    gt = np.swapaxes(g, 1, 2).reshape(nq * n, m)  # (square, candidate) rows of G'
+    gr = np.take(gt, row, axis=0)  # (ns, r, c + q)
+    wc = y[sq] - np.einsum("brj,br->bj", gr, wr)
     return np.concatenate([wc[:, :c], wr], axis=1), wc[:, c:]
 
 
