@@ -19,7 +19,7 @@ from mapper.field import checks
 from mapper.field.estimator import check_fitted
 from mapper.field.linalg import solve_batched
 from mapper.field.neighbourhood import nearest_others
-from mapper.field.rbf_local import predict_sets
+from mapper.field.rbf_local import kernel_of_squared, predict_sets
 from mapper.field.repeats import MERGE_TOL_M, merge_repeats
 from mapper.field.threads import blas_threads
 
@@ -174,8 +174,12 @@ class RBF:
                 scale = np.maximum(np.max(np.abs(pts - centre), axis=(1, 2), keepdims=True), 1e-12)
                 pm = _monomials((pts - centre) / scale, self.degree_)
                 q = pm.shape[-1]
-                d = np.sqrt(np.sum((pts[:, :, None, :] - pts[:, None, :, :]) ** 2, axis=-1))
-                kd = kernel(self.kernel_, d)
+                dx = pts[:, :, None, 0] - pts[:, None, :, 0]
+                dy = pts[:, :, None, 1] - pts[:, None, :, 1]
+                dx *= dx
+                dy *= dy
+                dx += dy
+                kd = kernel_of_squared(self.kernel_, dx)
                 a = np.zeros((ids.shape[0], k + q, k + q))
                 a[:, :k, k:] = pm
                 a[:, k:, :k] = np.swapaxes(pm, 1, 2)
@@ -183,8 +187,10 @@ class RBF:
                 rhs[:, :k] = z[idx]
                 kt = kernel(self.kernel_, np.sqrt(np.sum((pts - t[:, None, :]) ** 2, axis=-1)))
                 pt = _monomials((t[:, None, :] - centre) / scale, self.degree_)[:, 0, :]
+                diag = np.arange(k)
                 for j, smoothing in enumerate(smoothings):
-                    a[:, :k, :k] = kd + smoothing * np.eye(k)
+                    a[:, :k, :k] = kd
+                    a[:, diag, diag] += smoothing
                     coef = solve_batched(a, rhs)
                     est = np.einsum("bk,bk->b", coef[:, :k], kt) + np.einsum("bq,bq->b", coef[:, k:], pt)
                     err[j, s:s + _LOCAL_BATCH] = est - z[ids]
