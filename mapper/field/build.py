@@ -65,6 +65,19 @@ _WHERE = "build_field"
 
 
 
+def _threads_for(est) -> int:
+    """OpenBLAS threads for an estimator's fit, predict and leave-one-out.
+
+    Only the global kriging solves (one n x n factorisation, triangular solves with many
+    right-hand sides) gain from a second thread, and only on a core no other program keeps busy
+    (:func:`mapper.field.threads.free_cores`). Everything else is stacks of small systems or
+    tall, narrow least squares, where the extra threads cost more than they bring: the physical
+    model's fit of 20 000 readings took 29 s on 2 threads and 9 s on 1, measured
+    (benchmarks/README.md).
+    """
+    return free_cores() if isinstance(est, OrdinaryKriging | UniversalKriging) and est.neighbors is None else 1
+
+
 def data_spacing(xy: np.ndarray) -> float:
     """Median distance from each position to its nearest other position, metres."""
     if xy.shape[0] < 2:
@@ -206,8 +219,9 @@ def _reference_kriging(candidates, kinds, xy, z, merged, variogram, neighbors, n
         return "ordinary kriging could not be fitted"
     try:
         est, settings = _kriging_setup("kriging", merged, variogram, neighbors, n_targets, cell, spacing, fast)
-        est.fit(xy, z)
-        return est, settings, est.loo(at)[1]
+        with blas_threads(_threads_for(est)):
+            est.fit(xy, z)
+            return est, settings, est.loo(at)[1]
     except MapperError as exc:
         return f"ordinary kriging could not be fitted ({exc.message})"
 
@@ -232,7 +246,8 @@ def _calibrated_std(chosen, ref, chosen_loo, chosen_cv, targets, at_xy):
         cal = calibrate_std(chosen_loo[0], loo_std, atol_v_per_m=1e-9 * float(np.ptp(kr.values_)))
         note = cal.note
         if cal.ok:
-            _, ks = kr.predict(targets)
+            with blas_threads(_threads_for(kr)):
+                _, ks = kr.predict(targets)
             # Local level: the scale near each node from the nearby leave-one-out errors, then
             # one factor c so that the standardised errors have RMS 1 again (by construction).
             e, sd = np.asarray(chosen_loo[0], float), np.asarray(loo_std, float)
@@ -394,7 +409,8 @@ def _candidates(kinds, method, fast, xy, z, merged, variogram, neighbors, nodes:
                 nb = neighbors if neighbors is not None else 16
                 est, settings = IDW(neighbors=nb), IDWSettings(power=2.0, neighbors=nb)
             if kind != "physics":
-                est.fit(xy, z)
+                with blas_threads(_threads_for(est)):
+                    est.fit(xy, z)
         except MapperError as exc:
             if method != "auto":
                 raise
@@ -418,7 +434,8 @@ def _cross_validate(candidates, at: np.ndarray, n: int) -> tuple[dict, list[CVSt
     loo: dict[str, tuple[np.ndarray, np.ndarray | None]] = {}
     if n >= 3:
         for kind, (est, _) in candidates.items():
-            loo[kind] = est.loo(at)
+            with blas_threads(_threads_for(est)):
+                loo[kind] = est.loo(at)
             table.append(cv_stats(kind, *loo[kind]))
     return loo, table
 
@@ -525,10 +542,8 @@ def build_field(
     calibration of a borrowed standard deviation (:func:`_calibrated_std`), assembly
     (:func:`_assemble`).
     """
-    # Dense algebra on the cores other programs leave free: OpenBLAS splits each call evenly, so a
-    # thread that shares its core with another program holds the whole call up (measured:
-    # benchmarks/grid.py --busy).
-    with blas_threads(free_cores()):
+    # One BLAS thread, but for the global kriging solves (:func:`_threads_for`).
+    with blas_threads(1):
         method = checks.choose(method, METHODS, "method", _WHERE)
         xy, z, heights_m, height_m = _check_inputs(xy, values, outline, method, neighbors, variogram, fast,
                                                    heights_m, height_m)
@@ -552,7 +567,8 @@ def build_field(
             if height_m is not None:
                 reason += f"; field predicted at {height_m:g} m above the floor (readings at {est.height_m_:g} m)"
         else:
-            e, s = est.predict(nodes.targets)
+            with blas_threads(_threads_for(est)):
+                e, s = est.predict(nodes.targets)
         by_kind = {c.method: c for c in table}
         borrowed = None
         if chosen in NO_STD_METHODS:

@@ -29,6 +29,7 @@ _GETTERS = ("openblas_get_num_threads", "scipy_openblas_get_num_threads", "scipy
             "openblas_get_num_threads64_")
 _LOCK = threading.RLock()
 _LIBS: list[tuple[object, object]] | None = None
+_ORIGINAL: list[int] = []  # each library's thread count when first found (its default: the cores)
 
 
 def _find(lib: ctypes.CDLL, names: tuple[str, ...]):
@@ -67,6 +68,7 @@ def _libraries() -> list[tuple[object, object]]:
             setter.argtypes, setter.restype = [ctypes.c_int], None
             getter.argtypes, getter.restype = [], ctypes.c_int
             libs.append((setter, getter))
+    _ORIGINAL[:] = [int(get()) for _, get in libs]
     _LIBS = libs
     return libs
 
@@ -95,17 +97,17 @@ def free_cores() -> int:
 
 @contextmanager
 def blas_threads(n: int = 1) -> Iterator[None]:
-    """Run the ``with`` block with every OpenBLAS on at most ``n`` threads.
+    """Run the ``with`` block with every OpenBLAS on ``n`` threads (at most its default).
 
-    The counts found on entry are restored on exit. The setting is process-wide (OpenBLAS has no
-    other), so it also holds for the block's worker threads; a block inside another one lowers
-    the limit further or leaves it.
+    The counts found on entry are restored on exit, so a block inside another sets its own count
+    for its duration. The setting is process-wide (OpenBLAS has no other), so it also holds for
+    the block's worker threads.
     """
     with _LOCK:
         libs = _libraries()
         before = [int(get()) for _, get in libs]
-        for (setter, _), b in zip(libs, before, strict=True):
-            setter(max(1, min(int(n), b)))
+        for (setter, _), top in zip(libs, _ORIGINAL, strict=True):
+            setter(max(1, min(int(n), top)))
     try:
         yield
     finally:
