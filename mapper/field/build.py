@@ -12,7 +12,8 @@ from scipy.spatial import cKDTree
 from mapper.errors import MapperError
 from mapper.field import checks
 from mapper.field.crossval import cv_stats
-from mapper.field.fit import VariogramFit, fit_variogram
+from mapper.field.empirical import EmpiricalVariogram, empirical_variograms
+from mapper.field.fit import VariogramFit, default_n_lags, fit_model, fit_variogram
 from mapper.field.idw import IDW
 from mapper.field.kriging import OrdinaryKriging, UniversalKriging
 from mapper.field.model import CVStats, FieldGrid
@@ -35,6 +36,7 @@ from mapper.field.settings import (
     VariogramChoice,
     VariogramFitSummary,
 )
+from mapper.field.threads import blas_threads, free_cores
 from mapper.field.uncertainty import LOCAL_NEIGHBOURS, LOCAL_PRIOR, calibrate_std, local_scale
 from mapper.field.variogram import Variogram
 from mapper.nice import nice_ceiling
@@ -61,6 +63,19 @@ NO_STD_METHODS = ("rbf", "idw")
 _WHERE = "build_field"
 
 
+
+
+def _threads_for(est) -> int:
+    """OpenBLAS threads for an estimator's fit, predict and leave-one-out.
+
+    Only the global kriging solves (one n x n factorisation, triangular solves with many
+    right-hand sides) gain from a second thread, and only on a core no other program keeps busy
+    (:func:`mapper.field.threads.free_cores`). Everything else is stacks of small systems or
+    tall, narrow least squares, where the extra threads cost more than they bring: the physical
+    model's fit of 20 000 readings took 29 s on 2 threads and 9 s on 1, measured
+    (benchmarks/README.md).
+    """
+    return free_cores() if isinstance(est, OrdinaryKriging | UniversalKriging) and est.neighbors is None else 1
 
 
 def data_spacing(xy: np.ndarray) -> float:
@@ -99,7 +114,23 @@ def _plane_residuals(xy: np.ndarray, z: np.ndarray) -> np.ndarray:
     return z - a @ coef
 
 
-def _fit(xy: np.ndarray, z: np.ndarray, values: np.ndarray, kind: str, fast: bool) -> tuple[VariogramFit, dict | None]:
+def _empirical(merged, kinds) -> dict[str, EmpiricalVariogram]:
+    """The empirical variogram each kriging kind fits its models to, found in one pass over the pairs.
+
+    Ordinary kriging fits the readings, universal kriging their residuals from a plane; both come
+    from the same pairs (:func:`mapper.field.empirical.empirical_variograms`), exactly as
+    :func:`mapper.field.fit.fit_variogram` would bin each alone.
+    """
+    kinds = [k for k in kinds if k in ("kriging", "universal")]
+    if not kinds:
+        return {}
+    cols = [merged.values if k == "kriging" else _plane_residuals(merged.xy, merged.values) for k in kinds]
+    emps = empirical_variograms(merged.xy, cols, n_lags=default_n_lags(merged.xy.shape[0]))
+    return dict(zip(kinds, emps, strict=True))
+
+
+def _fit(xy: np.ndarray, z: np.ndarray, values: np.ndarray, kind: str, fast: bool,
+         emp: EmpiricalVariogram | None = None) -> tuple[VariogramFit, dict | None]:
     """Fit the variogram models to ``z`` and keep the one whose kriging predicts best.
 
     Each of :data:`_FIT_MODELS` is fitted to the empirical variogram of ``z`` (the readings, or
@@ -110,11 +141,15 @@ def _fit(xy: np.ndarray, z: np.ndarray, values: np.ndarray, kind: str, fast: boo
     validation"; Cressie 1993, sec. 2.6; chapter and section from memory); the goodness of fit to the binned
     semivariance cannot see the behaviour below
     the first lag bin (the data spacing), which decides how kriging weights the nearest readings.
-    The fast path fits the exponential model only. Returns the fit and a record of the choice.
+    The fast path fits the exponential model only. ``emp``, the empirical variogram of ``z`` when
+    already found (:func:`_empirical`), is shared by all the model fits; otherwise it is found
+    here, once. Returns the fit and a record of the choice.
     """
     if fast:
         return fit_variogram(xy, z, "exponential", max_pairs=200_000), None
-    fits = [fit_variogram(xy, z, m) for m in _FIT_MODELS]
+    if emp is None:
+        emp = empirical_variograms(xy, [z], n_lags=default_n_lags(xy.shape[0]))[0]
+    fits = [fit_model(emp, m) for m in _FIT_MODELS]
     n = xy.shape[0]
     at = _cv_subset(n, VARIOGRAM_CHOICE_POSITIONS)
     nb = DEFAULT_NEIGHBORS if n > DEFAULT_NEIGHBORS + 1 else None
@@ -141,13 +176,16 @@ def _fit(xy: np.ndarray, z: np.ndarray, values: np.ndarray, kind: str, fast: boo
     return best, choice
 
 
-def _kriging_setup(kind, merged, variogram, neighbors, n_targets, cell, spacing, fast):
-    """Build an unfitted kriging estimator and its settings (variogram and neighbourhood)."""
+def _kriging_setup(kind, merged, variogram, neighbors, n_targets, cell, spacing, fast, emp=None):
+    """Build an unfitted kriging estimator and its settings (variogram and neighbourhood).
+
+    ``emp``: the empirical variogram to fit the models to, when already found (:func:`_empirical`).
+    """
     n = merged.xy.shape[0]
     fit = choice = None
     if variogram is None:
         z = merged.values if kind == "kriging" else _plane_residuals(merged.xy, merged.values)
-        fit, choice = _fit(merged.xy, z, merged.values, kind, fast)
+        fit, choice = _fit(merged.xy, z, merged.values, kind, fast, emp)
         variogram = fit.variogram
     if neighbors is None:
         small = n <= DEFAULT_NEIGHBORS or (not fast and n <= 3000 and n * n * max(n_targets, 1) <= 3e10)
@@ -181,8 +219,9 @@ def _reference_kriging(candidates, kinds, xy, z, merged, variogram, neighbors, n
         return "ordinary kriging could not be fitted"
     try:
         est, settings = _kriging_setup("kriging", merged, variogram, neighbors, n_targets, cell, spacing, fast)
-        est.fit(xy, z)
-        return est, settings, est.loo(at)[1]
+        with blas_threads(_threads_for(est)):
+            est.fit(xy, z)
+            return est, settings, est.loo(at)[1]
     except MapperError as exc:
         return f"ordinary kriging could not be fitted ({exc.message})"
 
@@ -207,7 +246,8 @@ def _calibrated_std(chosen, ref, chosen_loo, chosen_cv, targets, at_xy):
         cal = calibrate_std(chosen_loo[0], loo_std, atol_v_per_m=1e-9 * float(np.ptp(kr.values_)))
         note = cal.note
         if cal.ok:
-            _, ks = kr.predict(targets)
+            with blas_threads(_threads_for(kr)):
+                _, ks = kr.predict(targets)
             # Local level: the scale near each node from the nearby leave-one-out errors, then
             # one factor c so that the standardised errors have RMS 1 again (by construction).
             e, sd = np.asarray(chosen_loo[0], float), np.asarray(loo_std, float)
@@ -348,11 +388,17 @@ def _candidates(kinds, method, fast, xy, z, merged, variogram, neighbors, nodes:
     n = merged.xy.shape[0]
     notes: list[str] = []
     candidates: dict[str, tuple[object, MethodSettings]] = {}
+    emps = {}
+    if variogram is None and not fast and n >= 2:
+        try:
+            emps = _empirical(merged, kinds)
+        except MapperError:  # each kind then meets (and notes) the same error in its own fit
+            emps = {}
     for kind in kinds:
         try:
             if kind in ("kriging", "universal"):
                 est, settings = _kriging_setup(kind, merged, variogram, neighbors, nodes.targets.shape[0],
-                                               nodes.cell, spacing, fast)
+                                               nodes.cell, spacing, fast, emps.get(kind))
             elif kind == "rbf":
                 nb = neighbors if neighbors is not None else (None if n <= 1000 else 64)
                 est, settings = RBF(neighbors=nb), RBFSettings(kernel="thin_plate_spline", neighbors=nb)
@@ -363,7 +409,8 @@ def _candidates(kinds, method, fast, xy, z, merged, variogram, neighbors, nodes:
                 nb = neighbors if neighbors is not None else 16
                 est, settings = IDW(neighbors=nb), IDWSettings(power=2.0, neighbors=nb)
             if kind != "physics":
-                est.fit(xy, z)
+                with blas_threads(_threads_for(est)):
+                    est.fit(xy, z)
         except MapperError as exc:
             if method != "auto":
                 raise
@@ -387,7 +434,8 @@ def _cross_validate(candidates, at: np.ndarray, n: int) -> tuple[dict, list[CVSt
     loo: dict[str, tuple[np.ndarray, np.ndarray | None]] = {}
     if n >= 3:
         for kind, (est, _) in candidates.items():
-            loo[kind] = est.loo(at)
+            with blas_threads(_threads_for(est)):
+                loo[kind] = est.loo(at)
             table.append(cv_stats(kind, *loo[kind]))
     return loo, table
 
@@ -494,50 +542,53 @@ def build_field(
     calibration of a borrowed standard deviation (:func:`_calibrated_std`), assembly
     (:func:`_assemble`).
     """
-    method = checks.choose(method, METHODS, "method", _WHERE)
-    xy, z, heights_m, height_m = _check_inputs(xy, values, outline, method, neighbors, variogram, fast,
-                                               heights_m, height_m)
-    merged = merge_repeats(xy, z)
-    nodes = _grid(outline, merged.xy, cell_m, fast)
-    spacing = data_spacing(merged.xy)
-    kinds = _candidate_kinds(method, fast, merged.xy.shape[0], height_m)
-    candidates, notes = _candidates(kinds, method, fast, xy, z, merged, variogram, neighbors, nodes, spacing,
-                                    seeds, heights_m)
-    at = _cv_subset(merged.xy.shape[0], 300 if fast else 2000)
-    loo, table = _cross_validate(candidates, at, merged.xy.shape[0])
-    chosen, reason = _select(candidates, table, method, fast)
-    if notes:
-        reason += "; " + "; ".join(notes)
-    est, method_settings = candidates[chosen]
-    if chosen == "physics":
-        e, s = est.predict(nodes.targets, height_m)
-        method_settings = dataclasses.replace(
-            method_settings, prediction_height_m=est.height_m_ if height_m is None else height_m,
-            loo_split=_loo_split(est, at, *loo["physics"]) if "physics" in loo else None)
-        if height_m is not None:
-            reason += f"; field predicted at {height_m:g} m above the floor (readings at {est.height_m_:g} m)"
-    else:
-        e, s = est.predict(nodes.targets)
-    by_kind = {c.method: c for c in table}
-    borrowed = None
-    if chosen in NO_STD_METHODS:
-        # calibrate: the borrowed, locally scaled kriging standard deviation
-        ref = _reference_kriging(candidates, kinds, xy, z, merged, variogram, neighbors, nodes.targets.shape[0],
-                                 nodes.cell, spacing, fast, at, loo)
-        s, borrowed, cv_chosen, text = _calibrated_std(chosen, ref, loo.get(chosen), by_kind.get(chosen),
-                                                       nodes.targets, merged.xy[at])
-        reason += "; " + text
-        if cv_chosen is not None:
-            by_kind[chosen] = cv_chosen
-            table = [cv_chosen if c.method == chosen else c for c in table]
-    settings = FieldSettings(
-        estimator=method_settings,
-        cell_m=nodes.cell,
-        n_readings=int(xy.shape[0]),
-        n_positions=int(merged.xy.shape[0]),
-        repeatability_v_per_m=merged.repeatability_v_per_m,
-        data_spacing_m=spacing,
-        fast=bool(fast),
-        std=borrowed,
-    )
-    return _assemble(nodes, e, s, chosen, settings, by_kind.get(chosen), table, reason)
+    # One BLAS thread, but for the global kriging solves (:func:`_threads_for`).
+    with blas_threads(1):
+        method = checks.choose(method, METHODS, "method", _WHERE)
+        xy, z, heights_m, height_m = _check_inputs(xy, values, outline, method, neighbors, variogram, fast,
+                                                   heights_m, height_m)
+        merged = merge_repeats(xy, z)
+        nodes = _grid(outline, merged.xy, cell_m, fast)
+        spacing = data_spacing(merged.xy)
+        kinds = _candidate_kinds(method, fast, merged.xy.shape[0], height_m)
+        candidates, notes = _candidates(kinds, method, fast, xy, z, merged, variogram, neighbors, nodes, spacing,
+                                        seeds, heights_m)
+        at = _cv_subset(merged.xy.shape[0], 300 if fast else 2000)
+        loo, table = _cross_validate(candidates, at, merged.xy.shape[0])
+        chosen, reason = _select(candidates, table, method, fast)
+        if notes:
+            reason += "; " + "; ".join(notes)
+        est, method_settings = candidates[chosen]
+        if chosen == "physics":
+            e, s = est.predict(nodes.targets, height_m)
+            method_settings = dataclasses.replace(
+                method_settings, prediction_height_m=est.height_m_ if height_m is None else height_m,
+                loo_split=_loo_split(est, at, *loo["physics"]) if "physics" in loo else None)
+            if height_m is not None:
+                reason += f"; field predicted at {height_m:g} m above the floor (readings at {est.height_m_:g} m)"
+        else:
+            with blas_threads(_threads_for(est)):
+                e, s = est.predict(nodes.targets)
+        by_kind = {c.method: c for c in table}
+        borrowed = None
+        if chosen in NO_STD_METHODS:
+            # calibrate: the borrowed, locally scaled kriging standard deviation
+            ref = _reference_kriging(candidates, kinds, xy, z, merged, variogram, neighbors, nodes.targets.shape[0],
+                                     nodes.cell, spacing, fast, at, loo)
+            s, borrowed, cv_chosen, text = _calibrated_std(chosen, ref, loo.get(chosen), by_kind.get(chosen),
+                                                           nodes.targets, merged.xy[at])
+            reason += "; " + text
+            if cv_chosen is not None:
+                by_kind[chosen] = cv_chosen
+                table = [cv_chosen if c.method == chosen else c for c in table]
+        settings = FieldSettings(
+            estimator=method_settings,
+            cell_m=nodes.cell,
+            n_readings=int(xy.shape[0]),
+            n_positions=int(merged.xy.shape[0]),
+            repeatability_v_per_m=merged.repeatability_v_per_m,
+            data_spacing_m=spacing,
+            fast=bool(fast),
+            std=borrowed,
+        )
+        return _assemble(nodes, e, s, chosen, settings, by_kind.get(chosen), table, reason)

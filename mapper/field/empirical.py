@@ -137,7 +137,37 @@ def empirical_variogram(
     -------
     EmpiricalVariogram
     """
-    xy, z = checks.readings(xy, values, _WHERE, minimum=2)
+    return empirical_variograms(
+        xy, [values], n_lags=n_lags, max_lag_m=max_lag_m, estimator=estimator, direction_deg=direction_deg,
+        tolerance_deg=tolerance_deg, angle=angle, ratio=ratio, max_pairs=max_pairs, seed=seed,
+    )[0]
+
+
+def empirical_variograms(
+    xy,
+    columns,
+    *,
+    n_lags: int = 15,
+    max_lag_m: float | None = None,
+    estimator: str = "matheron",
+    direction_deg: float | None = None,
+    tolerance_deg: float = 22.5,
+    angle: float = 0.0,
+    ratio: float = 1.0,
+    max_pairs: int = MAX_PAIRS,
+    seed: int = 0,
+) -> list[EmpiricalVariogram]:
+    """Binned empirical semivariance of several value columns at the same positions, in one pass.
+
+    The pairs, their lags and bins are found once and shared, so each variogram is exactly what
+    :func:`empirical_variogram` gives for its column alone (same pairs, same sums in the same
+    order). ``columns`` is a sequence of arrays of shape (n,), V/m; the other parameters are
+    those of :func:`empirical_variogram`. Returns one :class:`EmpiricalVariogram` per column.
+    """
+    if len(columns) == 0:
+        raise MapperError("no value column given", where=_WHERE)
+    checked = [checks.readings(xy, values, _WHERE, minimum=2) for values in columns]
+    xy, zs = checked[0][0], [c[1] for c in checked]
     est = checks.choose(estimator, ESTIMATORS, "estimator", _WHERE)
     if int(n_lags) < 1:
         raise MapperError(f"n_lags must be >= 1, got {n_lags!r}", where=_WHERE)
@@ -152,8 +182,7 @@ def empirical_variogram(
         tol = checks.positive(tolerance_deg, "tolerance_deg", _WHERE)
     cnt = np.zeros(n_lags)
     sum_d = np.zeros(n_lags)
-    sum_sq = np.zeros(n_lags)
-    sum_root = np.zeros(n_lags)
+    sums = [np.zeros(n_lags) for _ in zs]
     n = xy.shape[0]
     sampled = n * (n - 1) // 2 > max_pairs
     for i, j in _pair_blocks(n, int(max_pairs), seed):
@@ -168,28 +197,30 @@ def empirical_variogram(
             off = np.abs((az - direction_deg + 90.0) % 180.0 - 90.0)
             keep &= off <= tol
         d = d[keep]
-        dz = np.abs(z[j[keep]] - z[i[keep]])
+        ik, jk = i[keep], j[keep]
         b = np.minimum((d / width).astype(np.int64), n_lags - 1)
         cnt += np.bincount(b, minlength=n_lags)
         sum_d += np.bincount(b, d, n_lags)
-        if est == "matheron":
-            sum_sq += np.bincount(b, dz * dz, n_lags)
-        else:
-            sum_root += np.bincount(b, np.sqrt(dz), n_lags)
+        for z, acc in zip(zs, sums, strict=True):
+            dz = np.abs(z[jk] - z[ik])
+            acc += np.bincount(b, dz * dz if est == "matheron" else np.sqrt(dz), n_lags)
     ok = cnt > 0
     nn = cnt[ok]
-    if est == "matheron":
-        gamma = sum_sq[ok] / (2.0 * nn)
-    else:
-        gamma = (sum_root[ok] / nn) ** 4 / (2.0 * (0.457 + 0.494 / nn + 0.045 / nn**2))
-    return EmpiricalVariogram(
-        lags_m=sum_d[ok] / nn,
-        gamma=gamma,
-        pairs=nn.astype(np.int64),
-        edges_m=np.linspace(0.0, max_lag, n_lags + 1),
-        estimator=est,
-        direction_deg=None if direction_deg is None else float(direction_deg),
-        tolerance_deg=float(tolerance_deg),
-        sampled=bool(sampled),
-        variance=float(np.var(z, ddof=1)) if n > 1 else 0.0,
-    )
+    out = []
+    for z, acc in zip(zs, sums, strict=True):
+        if est == "matheron":
+            gamma = acc[ok] / (2.0 * nn)
+        else:
+            gamma = (acc[ok] / nn) ** 4 / (2.0 * (0.457 + 0.494 / nn + 0.045 / nn**2))
+        out.append(EmpiricalVariogram(
+            lags_m=sum_d[ok] / nn,
+            gamma=gamma,
+            pairs=nn.astype(np.int64),
+            edges_m=np.linspace(0.0, max_lag, n_lags + 1),
+            estimator=est,
+            direction_deg=None if direction_deg is None else float(direction_deg),
+            tolerance_deg=float(tolerance_deg),
+            sampled=bool(sampled),
+            variance=float(np.var(z, ddof=1)) if n > 1 else 0.0,
+        ))
+    return out

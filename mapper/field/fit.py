@@ -190,6 +190,14 @@ def fit_model(
     )
 
 
+def default_n_lags(n: int) -> int:
+    """Lag bins for ``n`` readings: 15, fewer for small surveys so that bins keep about 40 pairs.
+
+    Common practice, no source.
+    """
+    return int(np.clip(n * (n - 1) / 2 / 2 / 40, 4, 15))
+
+
 def fit_variogram(
     xy,
     values,
@@ -229,8 +237,7 @@ def fit_variogram(
     """
     kw = {} if max_pairs is None else {"max_pairs": max_pairs}
     if n_lags is None:
-        n = np.asarray(values).shape[0]
-        n_lags = int(np.clip(n * (n - 1) / 2 / 2 / 40, 4, 15))
+        n_lags = default_n_lags(np.asarray(values).shape[0])
     emp = empirical_variogram(
         xy, values, n_lags=n_lags, max_lag_m=max_lag_m, estimator=estimator, angle=angle,
         ratio=ratio, **kw,

@@ -1,8 +1,10 @@
-"""Radial basis function interpolation through ``scipy.interpolate.RBFInterpolator``.
+"""Radial basis function interpolation, as ``scipy.interpolate.RBFInterpolator`` defines it.
 
-Only the smoothing choice and the leave-one-out residuals are our own: the closed form (Dubrule
-1983) for the global interpolant, and a batched local solve (k nearest *other* readings, exactly
-what scipy does with ``neighbors``) for large surveys.
+The global interpolant is scipy's. Our own are the smoothing choice and the leave-one-out
+residuals (the closed form of Dubrule 1983 for the global interpolant, and a batched local solve
+with the k nearest *other* readings, exactly what scipy does with ``neighbors``, for large
+surveys), and the moving-neighbourhood prediction (:mod:`mapper.field.rbf_local`: one solve per
+distinct set of k nearest readings, the same values as scipy's per-neighbourhood solves).
 """
 
 from __future__ import annotations
@@ -17,7 +19,9 @@ from mapper.field import checks
 from mapper.field.estimator import check_fitted
 from mapper.field.linalg import solve_batched
 from mapper.field.neighbourhood import nearest_others
+from mapper.field.rbf_local import kernel_of_squared, predict_sets
 from mapper.field.repeats import MERGE_TOL_M, merge_repeats
+from mapper.field.threads import blas_threads
 
 #: Scale-free kernels (no shape parameter) and the polynomial degree scipy requires for each.
 KERNELS = {"thin_plate_spline": 1, "cubic": 1, "quintic": 2, "linear": 0}
@@ -107,6 +111,7 @@ class RBF:
         self.xy_, self.values_ = merged.xy, merged.values
         n = self.xy_.shape[0]
         self.local_ = self.neighbors is not None and self.neighbors < n
+        self._loo_cache_ = None
         self.shift_ = (self.xy_.max(axis=0) + self.xy_.min(axis=0)) / 2.0
         self.scale_ = float(max(np.max(self.xy_.max(axis=0) - self.xy_.min(axis=0)) / 2.0, 1e-12))
         if self.local_:
@@ -115,9 +120,9 @@ class RBF:
             self.smoothing_, self.smoothing_table_ = self._choose_smoothing()
         else:
             self.smoothing_, self.smoothing_table_ = self.smoothing, ()
-        self.interp_ = RBFInterpolator(
-            self.xy_, self.values_, neighbors=self.neighbors if self.local_ else None,
-            smoothing=self.smoothing_, kernel=self.kernel_, degree=self.degree_,
+        # The global interpolant is scipy's; the local one is evaluated by predict_sets.
+        self.interp_ = None if self.local_ else RBFInterpolator(
+            self.xy_, self.values_, smoothing=self.smoothing_, kernel=self.kernel_, degree=self.degree_,
         )
         return self
 
@@ -150,48 +155,63 @@ class RBF:
         a = w @ (inv * (w.T @ self.values_))
         return -a / diag
 
-    def _loo_local(self, smoothing: float, at: np.ndarray) -> np.ndarray:
+    def _loo_local(self, smoothings, at: np.ndarray) -> np.ndarray:
+        """LOO errors (len(smoothings), len(at)) of the local interpolant, one row per smoothing.
+
+        The neighbourhood systems are built once and solved for every smoothing in turn.
+        """
         k, xy, z = self.neighbors, self.xy_, self.values_
-        err = np.empty(at.shape[0])
-        for s in range(0, at.shape[0], _LOCAL_BATCH):
-            ids = at[s:s + _LOCAL_BATCH]
-            t = xy[ids]
-            _, idx = nearest_others(self.tree_, ids, k)
-            pts = xy[idx]
-            # scipy shifts and scales each neighbourhood for the polynomial; the solution is the same.
-            centre = pts.mean(axis=1, keepdims=True)
-            scale = np.maximum(np.max(np.abs(pts - centre), axis=(1, 2), keepdims=True), 1e-12)
-            pm = _monomials((pts - centre) / scale, self.degree_)
-            q = pm.shape[-1]
-            d = np.sqrt(np.sum((pts[:, :, None, :] - pts[:, None, :, :]) ** 2, axis=-1))
-            a = np.zeros((ids.shape[0], k + q, k + q))
-            a[:, :k, :k] = kernel(self.kernel_, d) + smoothing * np.eye(k)
-            a[:, :k, k:] = pm
-            a[:, k:, :k] = np.swapaxes(pm, 1, 2)
-            rhs = np.zeros((ids.shape[0], k + q))
-            rhs[:, :k] = z[idx]
-            coef = solve_batched(a, rhs)
-            kt = kernel(self.kernel_, np.sqrt(np.sum((pts - t[:, None, :]) ** 2, axis=-1)))
-            pt = _monomials((t[:, None, :] - centre) / scale, self.degree_)[:, 0, :]
-            est = np.einsum("bk,bk->b", coef[:, :k], kt) + np.einsum("bq,bq->b", coef[:, k:], pt)
-            err[s:s + _LOCAL_BATCH] = est - z[ids]
+        smoothings = np.atleast_1d(np.asarray(smoothings, dtype=float))
+        err = np.empty((smoothings.shape[0], at.shape[0]))
+        with blas_threads(1):
+            for s in range(0, at.shape[0], _LOCAL_BATCH):
+                ids = at[s:s + _LOCAL_BATCH]
+                t = xy[ids]
+                _, idx = nearest_others(self.tree_, ids, k)
+                pts = xy[idx]
+                # scipy shifts and scales each neighbourhood for the polynomial; the solution is the same.
+                centre = pts.mean(axis=1, keepdims=True)
+                scale = np.maximum(np.max(np.abs(pts - centre), axis=(1, 2), keepdims=True), 1e-12)
+                pm = _monomials((pts - centre) / scale, self.degree_)
+                q = pm.shape[-1]
+                dx = pts[:, :, None, 0] - pts[:, None, :, 0]
+                dy = pts[:, :, None, 1] - pts[:, None, :, 1]
+                dx *= dx
+                dy *= dy
+                dx += dy
+                kd = kernel_of_squared(self.kernel_, dx)
+                a = np.zeros((ids.shape[0], k + q, k + q))
+                a[:, :k, k:] = pm
+                a[:, k:, :k] = np.swapaxes(pm, 1, 2)
+                rhs = np.zeros((ids.shape[0], k + q))
+                rhs[:, :k] = z[idx]
+                kt = kernel(self.kernel_, np.sqrt(np.sum((pts - t[:, None, :]) ** 2, axis=-1)))
+                pt = _monomials((t[:, None, :] - centre) / scale, self.degree_)[:, 0, :]
+                diag = np.arange(k)
+                for j, smoothing in enumerate(smoothings):
+                    a[:, :k, :k] = kd
+                    a[:, diag, diag] += smoothing
+                    coef = solve_batched(a, rhs)
+                    est = np.einsum("bk,bk->b", coef[:, :k], kt) + np.einsum("bq,bq->b", coef[:, k:], pt)
+                    err[j, s:s + _LOCAL_BATCH] = est - z[ids]
         return err
 
     def _choose_smoothing(self) -> tuple[float, tuple[tuple[float, float], ...]]:
         n = self.xy_.shape[0]
         at = _cv_subset(n)
-        table = []
-        for s in self._candidates():
-            if self.local_:
-                e = self._loo_local(s, at)
-            elif n <= GLOBAL_MAX:
-                e = self._loo_global(s)
-            else:  # large global interpolant: judge the smoothing on a local proxy
-                self.tree_ = getattr(self, "tree_", None) or cKDTree(self.xy_)
-                self.neighbors, keep = 64, self.neighbors
-                e = self._loo_local(s, at)
-                self.neighbors = keep
-            table.append((float(s), float(np.sqrt(np.mean(e**2)))))
+        cands = self._candidates()
+        if self.local_:
+            errs = self._loo_local(cands, at)
+            # Kept for loo() at the same positions (build_field asks for exactly these).
+            self._loo_cache_ = (at, dict(zip(cands, errs, strict=True)))
+        elif n <= GLOBAL_MAX:
+            errs = [self._loo_global(s) for s in cands]
+        else:  # large global interpolant: judge the smoothing on a local proxy
+            self.tree_ = getattr(self, "tree_", None) or cKDTree(self.xy_)
+            self.neighbors, keep = 64, self.neighbors
+            errs = self._loo_local(cands, at)
+            self.neighbors = keep
+        table = [(float(s), float(np.sqrt(np.mean(e**2)))) for s, e in zip(cands, errs, strict=True)]
         best = min(table, key=lambda r: r[1])
         return best[0], tuple(table)
 
@@ -206,7 +226,10 @@ class RBF:
         n = self.xy_.shape[0]
         ids = np.arange(n) if at is None else np.asarray(at)
         if self.local_:
-            return self._loo_local(self.smoothing_, ids), None
+            cached = getattr(self, "_loo_cache_", None)
+            if cached is not None and np.array_equal(cached[0], ids) and self.smoothing_ in cached[1]:
+                return cached[1][self.smoothing_].copy(), None
+            return self._loo_local([self.smoothing_], ids)[0], None
         if n > GLOBAL_MAX:
             return self._loo_direct(self.smoothing_)[ids], None
         return self._loo_global(self.smoothing_)[ids], None
@@ -226,7 +249,12 @@ class RBF:
         """Interpolated values (V/m) at ``targets`` (m, 2) metres; std is NaN (none given)."""
         check_fitted(self, "predict")
         t = checks.points(targets, "RBF.predict", "targets")
-        est = self.interp_(t)
+        if self.local_:
+            with blas_threads(1):
+                est = predict_sets(self.xy_, self.values_, t, self.neighbors, self.kernel_, self.degree_,
+                                   self.smoothing_, self.tree_)
+        else:
+            est = self.interp_(t)
         return est, np.full(t.shape[0], np.nan)
 
 

@@ -138,3 +138,39 @@ def test_fit_with_fixed_nugget():
     emp = empirical_variogram(xy, z)
     f = fit_model(emp, "spherical", nugget=0.25, weights="pairs")
     assert f.variogram.nugget == 0.25
+
+
+@pytest.mark.parametrize(("n", "max_pairs", "estimator"), [(300, 5_000_000, "matheron"), (900, 50_000, "cressie")])
+def test_several_columns_in_one_pass_equal_each_alone(n, max_pairs, estimator):
+    # One pass over the pairs for several value columns must give, bit for bit, what each column
+    # gives alone (same pairs, same sums in the same order); all pairs and a sampled subset.
+    from mapper.field.empirical import empirical_variograms
+
+    rng = np.random.default_rng(4)
+    xy = rng.uniform(0, 40, size=(n, 2))
+    cols = [rng.normal(0, 1, n), np.sin(xy[:, 0] / 5) + rng.normal(0, 0.1, n)]
+    both = empirical_variograms(xy, cols, n_lags=12, estimator=estimator, max_pairs=max_pairs)
+    for col, emp in zip(cols, both, strict=True):
+        alone = empirical_variogram(xy, col, n_lags=12, estimator=estimator, max_pairs=max_pairs)
+        for field in ("lags_m", "gamma", "pairs", "edges_m"):
+            assert np.array_equal(getattr(emp, field), getattr(alone, field))
+        assert (emp.variance, emp.sampled) == (alone.variance, alone.sampled)
+
+
+def test_build_fits_from_the_shared_empirical_variogram_as_from_the_readings():
+    # build_field bins the pairs once for all models and both kriging kinds; the fits must be the
+    # ones fit_variogram gives from the readings themselves.
+    from mapper.field.build import _FIT_MODELS, _empirical, _fit, _plane_residuals
+    from mapper.field.repeats import merge_repeats
+
+    rng = np.random.default_rng(8)
+    xy = rng.uniform(0, 50, size=(400, 2))
+    z = 100 + 10 * np.sin(xy[:, 0] / 9) + 0.3 * xy[:, 1] + rng.normal(0, 1, 400)
+    merged = merge_repeats(xy, z)
+    emps = _empirical(merged, ["kriging", "universal", "rbf"])
+    assert set(emps) == {"kriging", "universal"}
+    for kind, zz in (("kriging", merged.values), ("universal", _plane_residuals(merged.xy, merged.values))):
+        shared, choice = _fit(merged.xy, zz, merged.values, kind, False, emps[kind])
+        own, own_choice = _fit(merged.xy, zz, merged.values, kind, False)
+        assert shared.variogram == own.variogram and choice == own_choice
+        assert choice["r2"] == {m: fit_variogram(merged.xy, zz, m).r2 for m in _FIT_MODELS}
