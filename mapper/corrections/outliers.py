@@ -1,6 +1,8 @@
 """Robust local outlier check: each reading against its neighbours, net of the local trend.
 
-For reading ``i`` and its ``k`` nearest other readings ``N(i)``:
+For reading ``i`` and its ``k`` nearest other readings ``N(i)`` (with every reading exactly as far
+as the k-th, so that on a walked grid the neighbourhood is symmetric and does not depend on the
+order a search visits equally distant readings in):
 
 1. The expected spatial variation is a local plane ``a + b dx + c dy`` fitted to ``N(i)``
    (coordinates relative to reading ``i``) by iteratively reweighted least squares with Tukey's
@@ -37,6 +39,8 @@ DEFAULT_THRESHOLD = 3.5
 #: (choice, no source; with 8 the three-parameter trend leaves too few degrees of freedom for
 #: a steady spread estimate).
 DEFAULT_NEIGHBOURS = 12
+_SEARCH_BLOCK = 2**22  # distances per block of the exhaustive neighbour search (32 MB)
+_EXHAUSTIVE_MAX = 8000  # readings up to which the neighbour search is exhaustive
 
 #: Tukey bisquare tuning constant (95 % efficiency at the normal distribution).
 BISQUARE_C = 4.685
@@ -67,7 +71,8 @@ class OutlierCheck:
     scale_v_per_m : ndarray
         Scale each deviation was divided by, V/m.
     neighbours : int
-        Neighbours used per reading (0 when there were too few readings to check).
+        Neighbours per reading, ``k`` (more where readings tie with the k-th; 0 when there were
+        too few readings to check).
     threshold : float
         Cut-off used.
     """
@@ -81,17 +86,83 @@ class OutlierCheck:
 
 
 def _neighbour_indices(xy: np.ndarray, k: int) -> np.ndarray:
-    """Indices of each point's ``k`` nearest *other* points (self removed by index)."""
-    from scipy.spatial import cKDTree  # about a quarter of a second to import: only when checking
+    """Each point's ``k`` nearest *other* points and every other point tied with the k-th.
 
+    On a walked grid several neighbours are often exactly equally far; taking all of them keeps
+    the neighbourhood symmetric and independent of how the search runs (a k-d tree breaks such
+    ties in its own order). Up to :data:`_EXHAUSTIVE_MAX` readings the search is exhaustive in
+    numpy (about 0.1 s at 5 000 readings, and no k-d tree to import); above, a k-d tree proposes
+    candidates. Either way the squared distances are computed here, the same way, so both give
+    the same neighbourhoods.
+
+    Returns
+    -------
+    ndarray of int, shape (n, m), m >= k
+        Neighbour indices, nearest first (ties by index); rows with fewer than ``m`` are padded
+        with -1.
+    """
     n = xy.shape[0]
-    _, idx = cKDTree(xy).query(xy, k=k + 1)
-    idx = np.atleast_2d(idx)
-    own = idx == np.arange(n)[:, None]
-    # Rows where duplicates pushed the point itself out of its own list: drop the farthest.
-    missing = ~own.any(axis=1)
-    own[missing, -1] = True
-    return idx[~own].reshape(n, k)
+    x, y = np.ascontiguousarray(xy[:, 0]), np.ascontiguousarray(xy[:, 1])
+    if n <= _EXHAUSTIVE_MAX:
+        step = max(1, _SEARCH_BLOCK // max(n, 1))
+        parts = []
+        for s in range(0, n, step):
+            e = min(n, s + step)
+            d2 = _squared(x, y, np.arange(s, e)[:, None], np.arange(n)[None, :])
+            d2[np.arange(e - s), np.arange(s, e)] = np.inf  # not its own neighbour
+            parts.append(_within_kth(d2, np.broadcast_to(np.arange(n), d2.shape), k))
+        width = max(p.shape[1] for p in parts)
+        return np.concatenate([np.pad(p, ((0, 0), (0, width - p.shape[1])), constant_values=-1) for p in parts])
+    from scipy.spatial import cKDTree  # large surveys only: about a quarter of a second to import
+
+    tree = cKDTree(xy)
+    extra = 8
+    _, cand = tree.query(xy, k=min(n, k + 1 + extra))
+    d2 = _squared(x, y, np.arange(n)[:, None], cand)
+    d2[cand == np.arange(n)[:, None]] = np.inf
+    out = _within_kth(d2, cand, k)
+    # Rows whose ties reach past the candidates the tree gave: every point within the k-th distance.
+    kth = np.partition(d2, k - 1, axis=1)[:, k - 1]
+    short = np.flatnonzero(np.sort(d2, axis=1)[:, -2] <= kth) if cand.shape[1] < n else np.empty(0, int)
+    if short.size:
+        rows = [np.asarray(tree.query_ball_point(xy[i], np.sqrt(kth[i]) * (1 + 1e-9) + 1e-12), dtype=np.int64)
+                for i in short]
+        width = max(out.shape[1], max(len(r) for r in rows))
+        out = np.pad(out, ((0, 0), (0, width - out.shape[1])), constant_values=-1)
+        for i, r in zip(short, rows, strict=True):
+            r = r[r != i]
+            rd = _squared(x, y, np.full(r.shape, i), r)
+            r, rd = r[rd <= kth[i]], rd[rd <= kth[i]]
+            order = np.lexsort((r, rd))
+            out[i] = -1
+            out[i, :r.shape[0]] = r[order]
+    return out
+
+
+def _squared(x: np.ndarray, y: np.ndarray, i: np.ndarray, j: np.ndarray) -> np.ndarray:
+    """Squared distances between points ``i`` and ``j`` (broadcast index arrays), metres^2."""
+    d2 = x[i] - x[j]
+    d2 *= d2
+    dy = y[i] - y[j]
+    dy *= dy
+    d2 += dy
+    return d2
+
+
+def _within_kth(d2: np.ndarray, idx: np.ndarray, k: int) -> np.ndarray:
+    """Per row, the indices ``idx`` whose ``d2`` is at most the row's k-th smallest, nearest first
+    (ties by index), padded with -1 to the widest row."""
+    kth = np.partition(d2, k - 1, axis=1)[:, k - 1:k]
+    rows, cols = np.nonzero(d2 <= kth)
+    count = np.bincount(rows, minlength=d2.shape[0])
+    width = int(count.max())
+    block = np.full((d2.shape[0], width), -1, np.int64)
+    dist = np.full((d2.shape[0], width), np.inf)
+    slot = np.arange(rows.shape[0]) - np.repeat(np.cumsum(count) - count, count)
+    block[rows, slot] = idx[rows, cols]
+    dist[rows, slot] = d2[rows, cols]
+    order = np.lexsort((np.where(block < 0, np.iinfo(np.int64).max, block), dist), axis=1)
+    return np.take_along_axis(block, order, axis=1)
 
 
 def local_planes(
@@ -106,7 +177,7 @@ def local_planes(
     v : ndarray
         Values, shape ``(n,)``.
     neigh : ndarray of int
-        Neighbour indices, shape ``(n, k)``.
+        Neighbour indices, shape ``(n, m)``; -1 pads rows with fewer neighbours.
 
     Returns
     -------
@@ -117,30 +188,40 @@ def local_planes(
     leverage : ndarray
         Leverage of predicting at the reading, dimensionless.
     """
-    n, k = neigh.shape
-    dx = x[neigh] - x[:, None]
-    dy = y[neigh] - y[:, None]
-    length = np.sqrt(np.mean(dx**2 + dy**2, axis=1))[:, None]
+    n, m = neigh.shape
+    real = neigh >= 0
+    nb = np.where(real, neigh, np.arange(n)[:, None])  # pads point at the reading itself, weight 0
+    count = real.sum(axis=1)
+    dx = x[nb] - x[:, None]
+    dy = y[nb] - y[:, None]
+    length = np.sqrt((dx**2 + dy**2).sum(axis=1) / count)[:, None]
     length[length == 0] = 1.0
-    design = np.stack([np.ones_like(dx), dx / length, dy / length], axis=2)  # (n, k, 3)
-    b = v[neigh]
+    design = np.stack([np.ones_like(dx), dx / length, dy / length], axis=2)  # (n, m, 3)
+    b = v[nb]
     # A tiny ridge on the slopes keeps collinear neighbourhoods (a walked line) solvable;
     # the slope across the line is then taken as zero.
-    ridge = np.diag([0.0, 1e-6, 1e-6]) * k
-    weights = np.ones_like(b)
+    ridge = np.diag([0.0, 1e-6, 1e-6])[None] * count[:, None, None]
+    weights = real.astype(float)
     floor = 1e-12 * max(float(np.max(np.abs(v))), 1.0)
     for _ in range(ROBUST_ITERATIONS + 1):
         weighted_t = design.transpose(0, 2, 1) * weights[:, None, :]
         normal = weighted_t @ design + ridge
         coef = np.linalg.solve(normal, (weighted_t @ b[:, :, None]))[..., 0]
         resid = b - (design @ coef[:, :, None])[..., 0]
-        spread = np.maximum(MAD_TO_SIGMA * np.median(np.abs(resid), axis=1), floor)
+        spread = np.maximum(MAD_TO_SIGMA * _median(np.abs(resid), real), floor)
         u = resid / (BISQUARE_C * spread[:, None])
-        weights = np.where(np.abs(u) < 1.0, (1.0 - u**2) ** 2, 0.0)
+        weights = np.where(real & (np.abs(u) < 1.0), (1.0 - u**2) ** 2, 0.0)
     leverage = np.linalg.inv(normal)[:, 0, 0]
     k_eff = np.maximum(weights.sum(axis=1), 4.0)
     spread = spread * np.sqrt(k_eff / (k_eff - 3.0))
     return coef[:, 0], spread, leverage
+
+
+def _median(values: np.ndarray, real: np.ndarray) -> np.ndarray:
+    """Median of each row over its real entries (the plain median where every entry is real)."""
+    if real.all():
+        return np.median(values, axis=1)
+    return np.nanmedian(np.where(real, values, np.nan), axis=1)
 
 
 def local_outliers(
@@ -184,14 +265,15 @@ def local_outliers(
             np.zeros(n, dtype=bool), np.zeros(n), v.copy(), np.full(n, np.nan), 0, threshold
         )
     neigh = _neighbour_indices(np.column_stack([x, y]), k)
+    real = neigh >= 0
     local, spread, leverage = local_planes(x, y, v, neigh)
     dev = (v - local) / np.sqrt(1.0 + leverage)
-    expected = MAD_TO_SIGMA * np.median(np.abs(dev[neigh]), axis=1)
+    expected = MAD_TO_SIGMA * _median(np.abs(dev[neigh]), real)
     # Site-wide floor: the median local spread, i.e. the reading noise over most of the site;
     # keeps a corner or edge reading with a few lucky neighbours from a too-small scale.
     floor = max(float(np.median(spread)), min_scale_v_per_m)
     scale = np.maximum.reduce(
-        [spread, np.median(spread[neigh], axis=1), expected, np.full(n, floor)]
+        [spread, _median(spread[neigh], real), expected, np.full(n, floor)]
     )
     score = np.abs(dev) / scale
     return OutlierCheck(score > threshold, score, local, scale, k, threshold)
