@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import numpy as np
 
+from mapper.corrections import outliers
 from mapper.corrections.meter import MeterProfile
 from mapper.corrections.outliers import OUTLIER_FLAG, local_outliers
 from mapper.corrections.pipeline import correct
@@ -88,3 +89,41 @@ def test_pipeline_flags_but_removes_nothing() -> None:
     assert flagged == [172]  # the excluded 50 kV/m reading is neither checked nor a neighbour
     assert result.readings[171].value_v_per_m == values[171]  # value untouched
     assert [r.reading.id for r in result.flagged_outliers] == [172]
+
+
+def test_neighbourhood_takes_every_reading_tied_with_the_kth():
+    # On a unit square grid the nearest others of an interior point are 4 at distance 1, 4 at
+    # sqrt(2) and 4 at 2 (elementary lattice geometry). Asking for 10 ends inside the ring at 2,
+    # so all 4 readings at that distance join: 12 neighbours, whatever order a search meets them.
+    gx, gy = np.meshgrid(np.arange(9.0), np.arange(9.0))
+    xy = np.column_stack([gx.ravel(), gy.ravel()])
+    centre = 4 * 9 + 4
+    neigh = outliers._neighbour_indices(xy, 10)
+    row = neigh[centre][neigh[centre] >= 0]
+    d = np.sort(np.hypot(*(xy[row] - xy[centre]).T))
+    np.testing.assert_allclose(d, [1] * 4 + [np.sqrt(2)] * 4 + [2] * 4)
+
+
+def test_exhaustive_and_tree_searches_give_the_same_neighbourhoods(monkeypatch):
+    rng = np.random.default_rng(4)
+    xy = np.round(rng.uniform(0, 80, size=(2500, 2)) / 0.5) * 0.5  # a 0.5 m walk grid: many ties
+    a = outliers._neighbour_indices(xy, 12)
+    monkeypatch.setattr(outliers, "_EXHAUSTIVE_MAX", 0)
+    b = outliers._neighbour_indices(xy, 12)
+    width = max(a.shape[1], b.shape[1])
+    pad = [np.pad(m, ((0, 0), (0, width - m.shape[1])), constant_values=-1) for m in (a, b)]
+    np.testing.assert_array_equal(pad[0], pad[1])
+    assert a.shape[1] > 12  # ties did occur
+
+
+def test_scores_are_symmetric_on_a_symmetric_grid():
+    # A field symmetric about x = 10 on a grid symmetric about x = 10: mirrored readings must get
+    # the same score (tied neighbours on both sides are all taken, so nothing breaks the symmetry).
+    gx, gy = np.meshgrid(np.arange(0.0, 21.0, 1.0), np.arange(0.0, 11.0, 1.0))
+    x, y = gx.ravel(), gy.ravel()
+    v = 100.0 * np.exp(-((x - 10.0) ** 2 + (y - 5.0) ** 2) / 8.0) + np.cos(y)
+    v[(x == 3) & (y == 4)] += 80.0
+    v[(x == 17) & (y == 4)] += 80.0
+    check = outliers.local_outliers(x, y, v)
+    mirror = np.lexsort((y, 20.0 - x))
+    np.testing.assert_allclose(check.score[np.lexsort((y, x))], check.score[mirror], rtol=1e-9, atol=1e-12)
