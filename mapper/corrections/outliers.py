@@ -39,8 +39,8 @@ DEFAULT_THRESHOLD = 3.5
 #: (choice, no source; with 8 the three-parameter trend leaves too few degrees of freedom for
 #: a steady spread estimate).
 DEFAULT_NEIGHBOURS = 12
-_SEARCH_BLOCK = 2**22  # distances per block of the exhaustive neighbour search (32 MB)
-_EXHAUSTIVE_MAX = 8000  # readings up to which the neighbour search is exhaustive
+_SWEEP_ROWS = 256  # rows per block of the neighbour sweep
+_SWEEP_MAX = 8000  # readings up to which the sweep is used; a k-d tree above (same neighbourhoods)
 
 #: Tukey bisquare tuning constant (95 % efficiency at the normal distribution).
 BISQUARE_C = 4.685
@@ -90,10 +90,12 @@ def _neighbour_indices(xy: np.ndarray, k: int) -> np.ndarray:
 
     On a walked grid several neighbours are often exactly equally far; taking all of them keeps
     the neighbourhood symmetric and independent of how the search runs (a k-d tree breaks such
-    ties in its own order). Up to :data:`_EXHAUSTIVE_MAX` readings the search is exhaustive in
-    numpy (about 0.1 s at 5 000 readings, and no k-d tree to import); above, a k-d tree proposes
-    candidates. Either way the squared distances are computed here, the same way, so both give
-    the same neighbourhoods.
+    ties in its own order). Up to :data:`_SWEEP_MAX` readings the search sweeps the points in
+    order of x: a block of rows is compared with the points within ``R`` of it in x, and ``R`` is
+    doubled for the block until every row's k-th distance is at most ``R`` (then no point outside
+    the window can be as near; exact, and no k-d tree to import, which costs a quarter of a second).
+    Above, a k-d tree proposes the candidates; either way the squared distances are computed the
+    same way here, so both give the same neighbourhoods.
 
     Returns
     -------
@@ -103,16 +105,39 @@ def _neighbour_indices(xy: np.ndarray, k: int) -> np.ndarray:
     """
     n = xy.shape[0]
     x, y = np.ascontiguousarray(xy[:, 0]), np.ascontiguousarray(xy[:, 1])
-    if n <= _EXHAUSTIVE_MAX:
-        step = max(1, _SEARCH_BLOCK // max(n, 1))
-        parts = []
-        for s in range(0, n, step):
-            e = min(n, s + step)
-            d2 = _squared(x, y, np.arange(s, e)[:, None], np.arange(n)[None, :])
-            d2[np.arange(e - s), np.arange(s, e)] = np.inf  # not its own neighbour
-            parts.append(_within_kth(d2, np.broadcast_to(np.arange(n), d2.shape), k))
-        width = max(p.shape[1] for p in parts)
-        return np.concatenate([np.pad(p, ((0, 0), (0, width - p.shape[1])), constant_values=-1) for p in parts])
+    if n > _SWEEP_MAX:
+        return _tree_neighbours(xy, x, y, k)
+    order = np.argsort(x, kind="stable")
+    xs = x[order]
+    span = np.ptp(xy, axis=0)
+    area = float(max(span[0], 1e-9) * max(span[1], 1e-9))
+    reach = 2.0 * np.sqrt(k * area / (np.pi * n))  # about twice the k-th distance of spread points
+    parts = []
+    for s in range(0, n, _SWEEP_ROWS):
+        e = min(n, s + _SWEEP_ROWS)
+        rows = order[s:e]
+        r = reach
+        while True:
+            lo = int(np.searchsorted(xs, xs[s] - r, side="left"))
+            hi = int(np.searchsorted(xs, xs[e - 1] + r, side="right"))
+            cols = order[lo:hi]
+            d2 = _squared(x, y, rows[:, None], cols[None, :])
+            d2[rows[:, None] == cols[None, :]] = np.inf  # not its own neighbour
+            kth = np.partition(d2, k - 1, axis=1)[:, k - 1]
+            if (lo == 0 and hi == n) or kth.max() <= r * r:
+                break
+            r *= 2.0
+        parts.append((rows, _within_kth(d2, np.broadcast_to(cols, d2.shape), k)))
+    width = max(p.shape[1] for _, p in parts)
+    out = np.full((n, width), -1, np.int64)
+    for rows, p in parts:
+        out[rows, :p.shape[1]] = p
+    return out
+
+
+def _tree_neighbours(xy: np.ndarray, x: np.ndarray, y: np.ndarray, k: int) -> np.ndarray:
+    """:func:`_neighbour_indices` for large surveys: a k-d tree proposes the candidates."""
+    n = xy.shape[0]
     from scipy.spatial import cKDTree  # large surveys only: about a quarter of a second to import
 
     tree = cKDTree(xy)

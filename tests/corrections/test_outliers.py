@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import numpy as np
+import pytest
 
 from mapper.corrections import outliers
 from mapper.corrections.meter import MeterProfile
@@ -104,16 +105,25 @@ def test_neighbourhood_takes_every_reading_tied_with_the_kth():
     np.testing.assert_allclose(d, [1] * 4 + [np.sqrt(2)] * 4 + [2] * 4)
 
 
-def test_exhaustive_and_tree_searches_give_the_same_neighbourhoods(monkeypatch):
-    rng = np.random.default_rng(4)
-    xy = np.round(rng.uniform(0, 80, size=(2500, 2)) / 0.5) * 0.5  # a 0.5 m walk grid: many ties
-    a = outliers._neighbour_indices(xy, 12)
-    monkeypatch.setattr(outliers, "_EXHAUSTIVE_MAX", 0)
-    b = outliers._neighbour_indices(xy, 12)
-    width = max(a.shape[1], b.shape[1])
-    pad = [np.pad(m, ((0, 0), (0, width - m.shape[1])), constant_values=-1) for m in (a, b)]
-    np.testing.assert_array_equal(pad[0], pad[1])
-    assert a.shape[1] > 12  # ties did occur
+@pytest.mark.parametrize("search", ["sweep", "tree"])
+@pytest.mark.parametrize("n", [40, 2500])
+def test_searches_find_what_an_exhaustive_search_finds(n, search, monkeypatch):
+    # Reference: all pairwise distances (numpy, written out here), every reading at most as far as
+    # the k-th nearest other one, nearest first, ties by index. Both searches must give it.
+    if search == "tree":
+        monkeypatch.setattr(outliers, "_SWEEP_MAX", 0)
+    rng = np.random.default_rng(n)
+    xy = np.round(rng.uniform(0, 2 * np.sqrt(n), size=(n, 2)) / 0.5) * 0.5  # a 0.5 m walk grid: ties
+    k = 12
+    got = outliers._neighbour_indices(xy, k)
+    d2 = ((xy[:, None, :] - xy[None, :, :]) ** 2).sum(axis=2)
+    np.fill_diagonal(d2, np.inf)
+    kth = np.sort(d2, axis=1)[:, k - 1]
+    for i in range(0, n, max(1, n // 200)):
+        near = np.flatnonzero(d2[i] <= kth[i])
+        want = near[np.lexsort((near, d2[i, near]))]
+        np.testing.assert_array_equal(got[i][got[i] >= 0], want)
+    assert got.shape[1] > k  # ties did occur
 
 
 def test_scores_are_symmetric_on_a_symmetric_grid():
