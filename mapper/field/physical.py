@@ -426,14 +426,23 @@ class PhysicalModel:
                 out[k] = shapes[k].with_theta(th[cuts[j]:cuts[j + 1]])
             return out
 
+        last: dict[bytes, tuple] = {}
+
         def solve(th):
+            # The Jacobian is asked at the point whose residuals were just computed: the
+            # columns and the linear solve of the last point are kept for it (same numbers).
+            key = np.asarray(th, float).tobytes()
+            if key in last:
+                return last[key]
             g = [shapes[k].column(th[cuts[j]:cuts[j + 1]], x, y, z) for j, k in enumerate(free)]
             a = np.column_stack([base, *g]) if g else base
             a[:, base.shape[1]:] /= sigma[:, None]
             col = np.linalg.norm(a, axis=0)
             col[col == 0] = 1.0
             coef, *_ = np.linalg.lstsq(a / col, target, rcond=None)
-            return a / col, coef, coef / col, g
+            last.clear()
+            last[key] = (a / col, coef, coef / col, g)
+            return last[key]
 
         def resid(th):
             a, coef, _, _ = solve(th)
@@ -476,15 +485,13 @@ class PhysicalModel:
         used_assets: set[str] = {sh.asset for sh in shapes if sh.asset is not None}
         best = self._score(shapes, sigma)
         cap = min(self.max_sources, max(0, (n - 3) // READINGS_PER_SOURCE // 2))
+        full2 = _weighted_norms2(self._gc, sigma) if self._gc.shape[1] else np.zeros(0)
         while len(shapes) < cap and self._gc.shape[1]:
             a = self._design(shapes, self.xy_[:, 0], self.xy_[:, 1], self.z_) / sigma[:, None]
             q, _ = np.linalg.qr(a / np.linalg.norm(a, axis=0))
             r = self.values_ / sigma
             r = r - q @ (q.T @ r)
-            g = self._gc / sigma[:, None]
-            g = g - q @ (q.T @ g)
-            norm2 = np.sum(g * g, axis=0)
-            gain = np.where(norm2 > 1e-12 * np.max(norm2 + 1e-300), (g.T @ r) ** 2 / np.maximum(norm2, 1e-300), 0.0)
+            gain = _gains(self._gc, sigma, q, r, full2)
             for k, c in enumerate(self._cands):
                 if c.asset is not None and c.asset in used_assets:
                     gain[k] = 0.0
@@ -669,6 +676,65 @@ class PhysicalModel:
             "meter_height_m": self.height_m_,
             "residual": self.kriging_.variogram_.describe() if self.kriging_ is not None else self.kriging_note_,
         }
+
+
+#: A candidate whose part outside the current design's span holds less than this share of its
+#: squared norm has that part computed explicitly (our own choice: below it, the difference of
+#: squared norms loses more than a few digits to cancellation).
+SPAN_TOL = 1e-6
+
+
+def _weighted_norms2(gc: np.ndarray, sigma: np.ndarray) -> np.ndarray:
+    """Squared norms of the weighted candidate columns ``gc / sigma`` (row blocks, no full copy)."""
+    out = np.zeros(gc.shape[1])
+    rows = max(1, 2**21 // max(gc.shape[1], 1))
+    for start in range(0, gc.shape[0], rows):
+        block = gc[start:start + rows] / sigma[start:start + rows, None]
+        np.square(block, out=block)
+        out += block.sum(axis=0)
+    return out
+
+
+def _gains(gc: np.ndarray, sigma: np.ndarray, q: np.ndarray, r: np.ndarray, full2: np.ndarray) -> np.ndarray:
+    """Drop of the weighted residual sum of squares from adding each candidate alone.
+
+    With ``G = gc / sigma`` the weighted candidates, ``q`` an orthonormal basis of the weighted
+    design and ``r`` the weighted residual (orthogonal to ``q``), the projection of candidate
+    ``k`` off the design is ``g_k = G_k - q q^T G_k``; its gain is ``(g_k^T r)^2 / ||g_k||^2``
+    (the exact least-squares drop of adding one column). Both are formed from ``q^T G``
+    (design columns x candidates) without the projected copy of ``G``: ``g_k^T r = G_k^T r -
+    (q^T G_k)^T (q^T r)`` and ``||g_k||^2 = ||G_k||^2 - ||q^T G_k||^2`` (Pythagoras). Candidates
+    almost in the design's span, where the difference cancels, are projected explicitly.
+
+    Parameters
+    ----------
+    gc : ndarray, shape (n, m)
+        Candidate columns at the readings, V/m per C.
+    sigma : ndarray, shape (n,)
+        Reading errors, V/m.
+    q : ndarray, shape (n, p)
+        Orthonormal basis of the weighted design.
+    r : ndarray, shape (n,)
+        Weighted residual (dimensionless).
+    full2 : ndarray, shape (m,)
+        ``||G_k||^2`` (:func:`_weighted_norms2`).
+
+    Returns
+    -------
+    ndarray, shape (m,)
+        Gains (dimensionless); 0 for candidates in the design's span.
+    """
+    qs = q / sigma[:, None]
+    qg = qs.T @ gc
+    num = gc.T @ (r / sigma) - qg.T @ (q.T @ r)
+    norm2 = full2 - np.einsum("ij,ij->j", qg, qg)
+    close = np.flatnonzero(norm2 <= SPAN_TOL * full2)
+    if close.size:
+        g = gc[:, close] / sigma[:, None]
+        g -= q @ (q.T @ g)
+        norm2[close] = np.einsum("ij,ij->j", g, g)
+        num[close] = g.T @ r
+    return np.where(norm2 > 1e-12 * np.max(norm2 + 1e-300), num**2 / np.maximum(norm2, 1e-300), 0.0)
 
 
 def _error_model(r: np.ndarray, m: np.ndarray, floor: float) -> tuple[float, float]:
