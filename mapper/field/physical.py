@@ -355,6 +355,9 @@ class PhysicalModel:
             cands += _lattice(bounds, self.spacing_m_, self.height_m_, self.gap_m_)
         self._cands = cands
         self._gc = np.column_stack([c.column(c.theta0, x, y, z) for c in cands]) if cands else np.zeros((n, 0))
+        # Each shape's column at the readings, computed once (shapes are not changed in place:
+        # a refined shape is a new one); the candidates' are the columns of _gc.
+        self._cols = {id(c): (c, self._gc[:, k]) for k, c in enumerate(cands)}
         floor = max(1e-6 * float(np.max(np.abs(self.values_))), 1e-9)
         self._floor = floor
         # Starting error model: a floor of 5 % of the median |reading| and 5 % of each reading
@@ -371,12 +374,24 @@ class PhysicalModel:
             sigma = np.sqrt(a2 + rho2 * m_src**2)
         self.noise_floor_v_per_m_, self.noise_share_ = math.sqrt(a2), math.sqrt(rho2)
         self._finish(shapes, sigma)
+        del self._cols
         return self
+
+    def _column(self, shape, x, y, z):
+        """A shape's field per coulomb at its parameters, at observers ``x, y, z`` (metres);
+        kept during the fit when the observers are the readings (``z`` is ``z_``)."""
+        cache = self.__dict__.get("_cols")
+        if cache is None or z is not self.z_:
+            return shape.column(shape.theta0, x, y, z)
+        hit = cache.get(id(shape))
+        if hit is None or hit[0] is not shape:
+            hit = cache[id(shape)] = (shape, shape.column(shape.theta0, x, y, z))
+        return hit[1]
 
     def _design(self, shapes, x, y, z):
         b = np.column_stack([np.ones(x.shape[0]), (x - self.centre_[0]) / self.scale_,
                              (y - self.centre_[1]) / self.scale_])
-        g = [s.column(s.theta0, x, y, z) for s in shapes]
+        g = [self._column(s, x, y, z) for s in shapes]
         return np.column_stack([b, *g]) if g else b
 
     def _beta(self, shapes, sigma):
@@ -397,7 +412,7 @@ class PhysicalModel:
         if not shapes:
             return np.zeros(x.shape[0])
         beta = self._beta(shapes, np.ones(self.values_.shape[0])) if not hasattr(self, "beta_") else self.beta_
-        g = np.column_stack([s.column(s.theta0, x, y, z) for s in shapes])
+        g = np.column_stack([self._column(s, x, y, z) for s in shapes])
         return g @ beta[3:3 + len(shapes)]
 
     def _refine(self, shapes, sigma, free=None, budget: int = 40):
@@ -435,13 +450,14 @@ class PhysicalModel:
             if key in last:
                 return last[key]
             g = [shapes[k].column(th[cuts[j]:cuts[j + 1]], x, y, z) for j, k in enumerate(free)]
-            a = np.column_stack([base, *g]) if g else base
+            a = np.column_stack([base, *g])
             a[:, base.shape[1]:] /= sigma[:, None]
             col = np.linalg.norm(a, axis=0)
             col[col == 0] = 1.0
-            coef, *_ = np.linalg.lstsq(a / col, target, rcond=None)
+            a /= col
+            coef, *_ = np.linalg.lstsq(a, target, rcond=None)
             last.clear()
-            last[key] = (a / col, coef, coef / col, g)
+            last[key] = (a, coef, coef / col, g)
             return last[key]
 
         def resid(th):
@@ -466,7 +482,13 @@ class PhysicalModel:
             return out
 
         sol = least_squares(resid, th0, jac=jac, bounds=(lo, hi), x_scale="jac", max_nfev=budget * len(th0))
-        return split(sol.x)
+        out = split(sol.x)
+        cache = self.__dict__.get("_cols")
+        hit = last.get(np.asarray(sol.x, float).tobytes())
+        if cache is not None and hit is not None:  # the refined shapes' columns at the readings
+            for j, k in enumerate(free):
+                cache[id(out[k])] = (out[k], hit[3][j])
+        return out
 
     def _score(self, shapes, sigma) -> float:
         """Bayesian information criterion of a set of sources (weighted residuals)."""
@@ -550,7 +572,7 @@ class PhysicalModel:
             if not sh.size:
                 continue
             q = self.beta_[3 + k]
-            base = sh.column(sh.theta0, x, y, z)
+            base = self._column(sh, x, y, z)
             for j in range(sh.size):
                 step = 1e-5 * max(1.0, abs(sh.theta0[j]))
                 t2 = sh.theta0.copy()
