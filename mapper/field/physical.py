@@ -477,8 +477,13 @@ class PhysicalModel:
                     step = 1e-6 * max(1.0, abs(part[i]))
                     t2 = part.copy()
                     t2[i] = min(t2[i] + step, shapes[k].hi[i]) if t2[i] + step <= shapes[k].hi[i] else t2[i] - step
-                    d = (shapes[k].column(t2, x, y, z) - g[j]) / (t2[i] - part[i]) * qk / sigma
-                    out[:, cuts[j] + i] = -(d - q @ (q.T @ d))
+                    d = shapes[k].column(t2, x, y, z)  # (d - g) / dt * qk / sigma, in place
+                    d -= g[j]
+                    d /= t2[i] - part[i]
+                    d *= qk
+                    d /= sigma
+                    d -= q @ (q.T @ d)
+                    np.negative(d, out=out[:, cuts[j] + i])
             return out
 
         sol = least_squares(resid, th0, jac=jac, bounds=(lo, hi), x_scale="jac", max_nfev=budget * len(th0))
