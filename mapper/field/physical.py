@@ -355,6 +355,9 @@ class PhysicalModel:
             cands += _lattice(bounds, self.spacing_m_, self.height_m_, self.gap_m_)
         self._cands = cands
         self._gc = np.column_stack([c.column(c.theta0, x, y, z) for c in cands]) if cands else np.zeros((n, 0))
+        # Each shape's column at the readings, computed once (shapes are not changed in place:
+        # a refined shape is a new one); the candidates' are the columns of _gc.
+        self._cols = {id(c): (c, self._gc[:, k]) for k, c in enumerate(cands)}
         floor = max(1e-6 * float(np.max(np.abs(self.values_))), 1e-9)
         self._floor = floor
         # Starting error model: a floor of 5 % of the median |reading| and 5 % of each reading
@@ -371,12 +374,24 @@ class PhysicalModel:
             sigma = np.sqrt(a2 + rho2 * m_src**2)
         self.noise_floor_v_per_m_, self.noise_share_ = math.sqrt(a2), math.sqrt(rho2)
         self._finish(shapes, sigma)
+        del self._cols
         return self
+
+    def _column(self, shape, x, y, z):
+        """A shape's field per coulomb at its parameters, at observers ``x, y, z`` (metres);
+        kept during the fit when the observers are the readings (``z`` is ``z_``)."""
+        cache = self.__dict__.get("_cols")
+        if cache is None or z is not self.z_:
+            return shape.column(shape.theta0, x, y, z)
+        hit = cache.get(id(shape))
+        if hit is None or hit[0] is not shape:
+            hit = cache[id(shape)] = (shape, shape.column(shape.theta0, x, y, z))
+        return hit[1]
 
     def _design(self, shapes, x, y, z):
         b = np.column_stack([np.ones(x.shape[0]), (x - self.centre_[0]) / self.scale_,
                              (y - self.centre_[1]) / self.scale_])
-        g = [s.column(s.theta0, x, y, z) for s in shapes]
+        g = [self._column(s, x, y, z) for s in shapes]
         return np.column_stack([b, *g]) if g else b
 
     def _beta(self, shapes, sigma):
@@ -397,7 +412,7 @@ class PhysicalModel:
         if not shapes:
             return np.zeros(x.shape[0])
         beta = self._beta(shapes, np.ones(self.values_.shape[0])) if not hasattr(self, "beta_") else self.beta_
-        g = np.column_stack([s.column(s.theta0, x, y, z) for s in shapes])
+        g = np.column_stack([self._column(s, x, y, z) for s in shapes])
         return g @ beta[3:3 + len(shapes)]
 
     def _refine(self, shapes, sigma, free=None, budget: int = 40):
@@ -426,14 +441,24 @@ class PhysicalModel:
                 out[k] = shapes[k].with_theta(th[cuts[j]:cuts[j + 1]])
             return out
 
+        last: dict[bytes, tuple] = {}
+
         def solve(th):
+            # The Jacobian is asked at the point whose residuals were just computed: the
+            # columns and the linear solve of the last point are kept for it (same numbers).
+            key = np.asarray(th, float).tobytes()
+            if key in last:
+                return last[key]
             g = [shapes[k].column(th[cuts[j]:cuts[j + 1]], x, y, z) for j, k in enumerate(free)]
-            a = np.column_stack([base, *g]) if g else base
+            a = np.column_stack([base, *g])
             a[:, base.shape[1]:] /= sigma[:, None]
             col = np.linalg.norm(a, axis=0)
             col[col == 0] = 1.0
-            coef, *_ = np.linalg.lstsq(a / col, target, rcond=None)
-            return a / col, coef, coef / col, g
+            a /= col
+            coef, *_ = np.linalg.lstsq(a, target, rcond=None)
+            last.clear()
+            last[key] = (a, coef, coef / col, g)
+            return last[key]
 
         def resid(th):
             a, coef, _, _ = solve(th)
@@ -452,12 +477,23 @@ class PhysicalModel:
                     step = 1e-6 * max(1.0, abs(part[i]))
                     t2 = part.copy()
                     t2[i] = min(t2[i] + step, shapes[k].hi[i]) if t2[i] + step <= shapes[k].hi[i] else t2[i] - step
-                    d = (shapes[k].column(t2, x, y, z) - g[j]) / (t2[i] - part[i]) * qk / sigma
-                    out[:, cuts[j] + i] = -(d - q @ (q.T @ d))
+                    d = shapes[k].column(t2, x, y, z)  # (d - g) / dt * qk / sigma, in place
+                    d -= g[j]
+                    d /= t2[i] - part[i]
+                    d *= qk
+                    d /= sigma
+                    d -= q @ (q.T @ d)
+                    np.negative(d, out=out[:, cuts[j] + i])
             return out
 
         sol = least_squares(resid, th0, jac=jac, bounds=(lo, hi), x_scale="jac", max_nfev=budget * len(th0))
-        return split(sol.x)
+        out = split(sol.x)
+        cache = self.__dict__.get("_cols")
+        hit = last.get(np.asarray(sol.x, float).tobytes())
+        if cache is not None and hit is not None:  # the refined shapes' columns at the readings
+            for j, k in enumerate(free):
+                cache[id(out[k])] = (out[k], hit[3][j])
+        return out
 
     def _score(self, shapes, sigma) -> float:
         """Bayesian information criterion of a set of sources (weighted residuals)."""
@@ -476,15 +512,13 @@ class PhysicalModel:
         used_assets: set[str] = {sh.asset for sh in shapes if sh.asset is not None}
         best = self._score(shapes, sigma)
         cap = min(self.max_sources, max(0, (n - 3) // READINGS_PER_SOURCE // 2))
+        full2 = _weighted_norms2(self._gc, sigma) if self._gc.shape[1] else np.zeros(0)
         while len(shapes) < cap and self._gc.shape[1]:
             a = self._design(shapes, self.xy_[:, 0], self.xy_[:, 1], self.z_) / sigma[:, None]
             q, _ = np.linalg.qr(a / np.linalg.norm(a, axis=0))
             r = self.values_ / sigma
             r = r - q @ (q.T @ r)
-            g = self._gc / sigma[:, None]
-            g = g - q @ (q.T @ g)
-            norm2 = np.sum(g * g, axis=0)
-            gain = np.where(norm2 > 1e-12 * np.max(norm2 + 1e-300), (g.T @ r) ** 2 / np.maximum(norm2, 1e-300), 0.0)
+            gain = _gains(self._gc, sigma, q, r, full2)
             for k, c in enumerate(self._cands):
                 if c.asset is not None and c.asset in used_assets:
                     gain[k] = 0.0
@@ -543,7 +577,7 @@ class PhysicalModel:
             if not sh.size:
                 continue
             q = self.beta_[3 + k]
-            base = sh.column(sh.theta0, x, y, z)
+            base = self._column(sh, x, y, z)
             for j in range(sh.size):
                 step = 1e-5 * max(1.0, abs(sh.theta0[j]))
                 t2 = sh.theta0.copy()
@@ -669,6 +703,65 @@ class PhysicalModel:
             "meter_height_m": self.height_m_,
             "residual": self.kriging_.variogram_.describe() if self.kriging_ is not None else self.kriging_note_,
         }
+
+
+#: A candidate whose part outside the current design's span holds less than this share of its
+#: squared norm has that part computed explicitly (our own choice: below it, the difference of
+#: squared norms loses more than a few digits to cancellation).
+SPAN_TOL = 1e-6
+
+
+def _weighted_norms2(gc: np.ndarray, sigma: np.ndarray) -> np.ndarray:
+    """Squared norms of the weighted candidate columns ``gc / sigma`` (row blocks, no full copy)."""
+    out = np.zeros(gc.shape[1])
+    rows = max(1, 2**21 // max(gc.shape[1], 1))
+    for start in range(0, gc.shape[0], rows):
+        block = gc[start:start + rows] / sigma[start:start + rows, None]
+        np.square(block, out=block)
+        out += block.sum(axis=0)
+    return out
+
+
+def _gains(gc: np.ndarray, sigma: np.ndarray, q: np.ndarray, r: np.ndarray, full2: np.ndarray) -> np.ndarray:
+    """Drop of the weighted residual sum of squares from adding each candidate alone.
+
+    With ``G = gc / sigma`` the weighted candidates, ``q`` an orthonormal basis of the weighted
+    design and ``r`` the weighted residual (orthogonal to ``q``), the projection of candidate
+    ``k`` off the design is ``g_k = G_k - q q^T G_k``; its gain is ``(g_k^T r)^2 / ||g_k||^2``
+    (the exact least-squares drop of adding one column). Both are formed from ``q^T G``
+    (design columns x candidates) without the projected copy of ``G``: ``g_k^T r = G_k^T r -
+    (q^T G_k)^T (q^T r)`` and ``||g_k||^2 = ||G_k||^2 - ||q^T G_k||^2`` (Pythagoras). Candidates
+    almost in the design's span, where the difference cancels, are projected explicitly.
+
+    Parameters
+    ----------
+    gc : ndarray, shape (n, m)
+        Candidate columns at the readings, V/m per C.
+    sigma : ndarray, shape (n,)
+        Reading errors, V/m.
+    q : ndarray, shape (n, p)
+        Orthonormal basis of the weighted design.
+    r : ndarray, shape (n,)
+        Weighted residual (dimensionless).
+    full2 : ndarray, shape (m,)
+        ``||G_k||^2`` (:func:`_weighted_norms2`).
+
+    Returns
+    -------
+    ndarray, shape (m,)
+        Gains (dimensionless); 0 for candidates in the design's span.
+    """
+    qs = q / sigma[:, None]
+    qg = qs.T @ gc
+    num = gc.T @ (r / sigma) - qg.T @ (q.T @ r)
+    norm2 = full2 - np.einsum("ij,ij->j", qg, qg)
+    close = np.flatnonzero(norm2 <= SPAN_TOL * full2)
+    if close.size:
+        g = gc[:, close] / sigma[:, None]
+        g -= q @ (q.T @ g)
+        norm2[close] = np.einsum("ij,ij->j", g, g)
+        num[close] = g.T @ r
+    return np.where(norm2 > 1e-12 * np.max(norm2 + 1e-300), num**2 / np.maximum(norm2, 1e-300), 0.0)
 
 
 def _error_model(r: np.ndarray, m: np.ndarray, floor: float) -> tuple[float, float]:

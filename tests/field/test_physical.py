@@ -162,3 +162,51 @@ def test_sample_hall_physics_beats_data_only_methods_and_finds_every_source(hall
     assert any(shapely.from_wkt(s.wkt).distance(shapely.Point(42.8, 11.2)) < 1.0 for s in sources)
     totes = shapely.box(17, 21, 21, 23)
     assert any(shapely.from_wkt(s.wkt).distance(totes) < 1.0 for s in sources)
+
+
+def _rss(a, b):
+    coef, *_ = np.linalg.lstsq(a, b, rcond=None)
+    return float(np.sum((b - a @ coef) ** 2))
+
+
+def test_candidate_gains_are_the_least_squares_drop_of_each_candidate():
+    # Reference: numpy.linalg.lstsq, each candidate appended to the design and the residual sum
+    # of squares recomputed; the gain is the drop (the textbook definition of greedy forward
+    # selection, e.g. Miller, Subset Selection in Regression, 2nd ed., sec. 3.2).
+    from mapper.field.physical import SPAN_TOL, _gains, _weighted_norms2
+
+    rng = np.random.default_rng(4)
+    n = 400
+    sigma = rng.uniform(0.5, 2.0, n)
+    design = np.column_stack([np.ones(n), rng.standard_normal((n, 3))])
+    gc = rng.standard_normal((n, 6)) * 1e6
+    gc[:, 1] = design[:, 1] * 3e6 - design[:, 2] * 1e6  # in the design's span
+    gc[:, 2] = gc[:, 1] + 10.0 * rng.standard_normal(n)  # almost in it: the explicit projection
+    gc[:, 3] = gc[:, 1] + 1e5 * rng.standard_normal(n)  # near it, above the tolerance
+    # readings with a share of candidates 0, 2 and 3 outside the design's span
+    values = (design @ [1.0, 2.0, -1.0, 0.5] + 1e-6 * gc[:, 0] + 0.2 * (gc[:, 2] - gc[:, 1])
+              + 2e-5 * (gc[:, 3] - gc[:, 1]) + rng.standard_normal(n))
+    a = design / sigma[:, None]
+    q, _ = np.linalg.qr(a / np.linalg.norm(a, axis=0))
+    r = values / sigma
+    r = r - q @ (q.T @ r)
+    full2 = _weighted_norms2(gc, sigma)
+    np.testing.assert_allclose(full2, np.sum((gc / sigma[:, None]) ** 2, axis=0), rtol=1e-13)
+    gain = _gains(gc, sigma, q, r, full2)
+    base = _rss(a, values / sigma)
+    for k in range(gc.shape[1]):
+        want = base - _rss(np.column_stack([a, gc[:, k] / sigma]), values / sigma)
+        if k == 1:
+            assert gain[k] == 0.0
+        else:
+            assert gain[k] == pytest.approx(want, rel=1e-6, abs=1e-9 * base)
+            assert k > 3 or want > 1e-2 * base  # these explain a share of the residual
+    # the near-span candidates: one on each side of the switch to the explicit projection
+    g = gc / sigma[:, None]
+    share = np.sum((g - q @ (q.T @ g)) ** 2, axis=0) / full2
+    assert 1e-12 < share[2] < SPAN_TOL < share[3]
+    # and the same numbers as projecting every candidate explicitly
+    proj = g - q @ (q.T @ g)
+    norm2 = np.sum(proj * proj, axis=0)
+    explicit = np.where(norm2 > 1e-12 * norm2.max(), (proj.T @ r) ** 2 / np.maximum(norm2, 1e-300), 0.0)
+    np.testing.assert_allclose(gain, explicit, rtol=1e-9, atol=0)
