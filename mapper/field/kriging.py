@@ -29,10 +29,12 @@ from mapper.errors import MapperError
 from mapper.field import checks
 from mapper.field.estimator import check_fitted
 from mapper.field.linalg import (
+    bordered_system,
     chol_inverse_rows,
     cholesky_upper,
     lower_solve_inplace,
     solve_batched,
+    squared_within,
 )
 from mapper.field.neighbourhood import map_nearest_sets, nearest_others
 from mapper.field.repeats import MERGE_TOL_M, MergedReadings, merge_repeats
@@ -380,7 +382,7 @@ class _Kriging:
             rows, valid = _set_rows(block, ids, w)
             size = k + p + 1 + w
             a = np.zeros((nb, size, size))
-            _within_into(pts, a[:, :k, :k])
+            _within(pts, a[:, :k, :k])
             cov = vg.covariance_into(a[:, :k, :k], with_nugget=False)
             if cov.base is not a:  # models computed out of place
                 a[:, :k, :k] = cov
@@ -533,28 +535,6 @@ def _set_rows(block, ids: np.ndarray, w: int) -> tuple[np.ndarray, np.ndarray]:
     return rows, valid
 
 
-def bordered_system(gamma: np.ndarray, f: np.ndarray) -> np.ndarray:
-    """The kriging system in variogram form, ``[[Gamma, F], [F', 0]]``, for one or a stack.
-
-    Parameters
-    ----------
-    gamma : ndarray, shape (..., n, n)
-        Semivariances among the data, (V/m)^2.
-    f : ndarray, shape (..., n, p)
-        Drift basis at the data (a column of ones for ordinary kriging).
-
-    Returns
-    -------
-    ndarray, shape (..., n + p, n + p)
-    """
-    n, p = f.shape[-2:]
-    a = np.zeros(gamma.shape[:-2] + (n + p, n + p))
-    a[..., :n, :n] = gamma
-    a[..., :n, n:] = f
-    a[..., n:, :n] = np.swapaxes(f, -1, -2)
-    return a
-
-
 def _core_parts(cc: np.ndarray, bcol: np.ndarray, kc: np.ndarray, c: int):
     """Per square, eliminate the ``c`` core candidates shared by all its sets.
 
@@ -600,26 +580,9 @@ def _pairwise(xt: np.ndarray) -> np.ndarray:
     return out
 
 
-def _within(pts: np.ndarray) -> np.ndarray:
-    """Distances (B, k, k) within each neighbourhood of positions ``pts`` (B, k, 2)."""
-    px, py = np.ascontiguousarray(pts[..., 0]), np.ascontiguousarray(pts[..., 1])
-    dx = px[:, :, None] - px[:, None, :]
-    dy = py[:, :, None] - py[:, None, :]
-    dx *= dx
-    dy *= dy
-    dx += dy
-    return np.sqrt(dx, out=dx)
-
-
-def _within_into(pts: np.ndarray, out: np.ndarray) -> np.ndarray:
-    """Distances (B, k, k) within each neighbourhood of positions ``pts`` (B, k, 2), into ``out``."""
-    px, py = pts[..., 0], pts[..., 1]
-    np.subtract(px[:, :, None], px[:, None, :], out=out)
-    np.multiply(out, out, out=out)
-    dy = py[:, :, None] - py[:, None, :]
-    dy *= dy
-    out += dy
-    return np.sqrt(out, out=out)
+def _within(pts: np.ndarray, out: np.ndarray | None = None) -> np.ndarray:
+    """Distances (B, k, k) within each neighbourhood of positions ``pts`` (B, k, 2), metres."""
+    return np.sqrt(squared_within(pts, out), out=out)
 
 
 def _to_point(pts: np.ndarray, t: np.ndarray) -> np.ndarray:

@@ -50,6 +50,45 @@ def inv_batched(a: np.ndarray) -> np.ndarray:
         return out
 
 
+def bordered_system(block: np.ndarray, border: np.ndarray) -> np.ndarray:
+    """The bordered system ``[[A, P], [P', 0]]`` of one or a stack of neighbourhoods.
+
+    Kriging in variogram form (``A`` the semivariances, ``P`` the drift basis) and RBF
+    interpolation (``A`` the kernel matrix with its smoothing, ``P`` the polynomial) share it.
+
+    Parameters
+    ----------
+    block : ndarray, shape (..., n, n)
+        Semivariances (V/m)^2 or kernel values among the data.
+    border : ndarray, shape (..., n, p)
+        Drift or polynomial basis at the data.
+
+    Returns
+    -------
+    ndarray, shape (..., n + p, n + p)
+    """
+    n, p = border.shape[-2:]
+    a = np.zeros(block.shape[:-2] + (n + p, n + p))
+    a[..., :n, :n] = block
+    a[..., :n, n:] = border
+    a[..., n:, :n] = np.swapaxes(border, -1, -2)
+    return a
+
+
+def squared_within(pts: np.ndarray, out: np.ndarray | None = None) -> np.ndarray:
+    """Squared distances (B, k, k) within each stack member of positions ``pts`` (B, k, 2), m^2.
+
+    ``out`` (B, k, k), when given, receives the result (it may be a strided view).
+    """
+    px, py = pts[..., 0], pts[..., 1]
+    out = np.subtract(px[:, :, None], px[:, None, :], out=out)
+    np.multiply(out, out, out=out)
+    dy = py[:, :, None] - py[:, None, :]
+    dy *= dy
+    out += dy
+    return out
+
+
 # ---------------------------------------------------------------------------------- global solves
 # The global kriging solve is dominated by one triangular solve with n x (targets) right-hand
 # sides. These helpers call LAPACK/BLAS (scipy's OpenBLAS) on Fortran-ordered views so that no

@@ -20,7 +20,6 @@ All positions are in the method's (anisotropy-transformed) coordinates, metres.
 
 from __future__ import annotations
 
-import os
 from collections.abc import Callable
 from concurrent.futures import ThreadPoolExecutor
 from dataclasses import dataclass
@@ -28,6 +27,8 @@ from typing import TypeVar
 
 import numpy as np
 from scipy.spatial import cKDTree
+
+from mapper.field.threads import usable_cores
 
 _BLOCK_ELEMENTS = 2**21  # padded target x candidate distances per block (16 MB)
 _SPARSE_BLOCK = 2**15  # targets per block when each target is its own square
@@ -113,11 +114,7 @@ class NeighbourSets:
 
 def worker_count() -> int:
     """Threads for the batched numerics: the usable cores, at most 4."""
-    try:
-        n = len(os.sched_getaffinity(0))
-    except AttributeError:  # pragma: no cover - not Linux
-        n = os.cpu_count() or 1
-    return max(1, min(4, n))
+    return max(1, min(4, usable_cores()))
 
 
 def map_nearest_sets(
@@ -150,8 +147,8 @@ def map_nearest_sets(
     Returns
     -------
     list
-        What ``consume`` returned, block by block. Ties at the k-th distance are broken
-        arbitrarily (any such choice is a set of k nearest).
+        What ``consume`` returned, block by block. Of data tied at the k-th distance, those of
+        lower index are taken, on both searches (squares and one tree query per target).
     """
     data = np.ascontiguousarray(data, dtype=float)
     targets = np.ascontiguousarray(targets, dtype=float)
@@ -159,7 +156,8 @@ def map_nearest_sets(
         return []
     tree = cKDTree(data) if tree is None else tree
     side = max(_typical_kth_distance(data, k) / 5.0, 1e-6) if side is None else float(side)
-    if not _worth_squares(targets, side):
+    binned = _bin(targets, side)
+    if not _worth_squares(binned[2]):
         # Targets sparser than the squares (a coarse grid): each is its own square, and its k
         # nearest found by the tree are its candidates, all of them members.
         blocks = [(s, min(targets.shape[0], s + _SPARSE_BLOCK)) for s in range(0, targets.shape[0], _SPARSE_BLOCK)]
@@ -167,7 +165,7 @@ def map_nearest_sets(
         def job(bounds: tuple[int, int]) -> T:
             return consume(_single_sets(tree, targets, k, *bounds))
     else:
-        squares = _Squares.of(data, targets, k, tree, side)
+        squares = _Squares.of(data, targets, k, tree, side, binned)
 
         def job(bounds: tuple[int, int]) -> T:
             return consume(squares.sets(*bounds))
@@ -233,12 +231,17 @@ def nearest_others(tree: cKDTree, ids: np.ndarray, k: int) -> tuple[np.ndarray, 
     return d[keep].reshape(ids.shape[0], k), idx[keep].reshape(ids.shape[0], k)
 
 
-def _worth_squares(targets: np.ndarray, side: float) -> bool:
-    """Whether squares of ``side`` hold enough targets on average (at least 4) to share work."""
+def _bin(targets: np.ndarray, side: float) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Squares of ``side`` (metres) over the targets: origin (2,), each target's (column, row) key
+    (m, 2) and one integer per square (m,)."""
     origin = targets.min(axis=0)
     key = np.floor((targets - origin) / side).astype(np.int64)
-    flat = key[:, 0] * (int(key[:, 1].max()) + 1) + key[:, 1]
-    return targets.shape[0] >= 4 * np.unique(flat).shape[0]
+    return origin, key, key[:, 0] * (int(key[:, 1].max()) + 1) + key[:, 1]
+
+
+def _worth_squares(flat: np.ndarray) -> bool:
+    """Whether the squares (one integer each per target) hold at least 4 targets on average."""
+    return flat.shape[0] >= 4 * np.unique(flat).shape[0]
 
 
 def _single_sets(tree: cKDTree, targets: np.ndarray, k: int, s: int, e: int) -> NeighbourSets:
@@ -293,10 +296,8 @@ class _Squares:
     k: int
 
     @classmethod
-    def of(cls, data, targets, k, tree, side: float) -> _Squares:
-        origin = targets.min(axis=0)
-        key = np.floor((targets - origin) / side).astype(np.int64)
-        flat = key[:, 0] * (int(key[:, 1].max()) + 1) + key[:, 1]
+    def of(cls, data, targets, k, tree, side: float, binned) -> _Squares:
+        origin, key, flat = binned
         order = np.argsort(flat, kind="stable")
         flat_sorted = flat[order]
         starts = np.flatnonzero(np.r_[True, flat_sorted[1:] != flat_sorted[:-1]])

@@ -17,9 +17,9 @@ from scipy.spatial.distance import cdist
 from mapper.errors import MapperError
 from mapper.field import checks
 from mapper.field.estimator import check_fitted
-from mapper.field.linalg import solve_batched
+from mapper.field.linalg import bordered_system, solve_batched, squared_within
 from mapper.field.neighbourhood import nearest_others
-from mapper.field.rbf_local import kernel_of_squared, predict_sets
+from mapper.field.rbf_local import kernel_of_squared, monomials, predict_sets
 from mapper.field.repeats import MERGE_TOL_M, merge_repeats
 from mapper.field.threads import blas_threads
 
@@ -41,15 +41,6 @@ def kernel(name: str, r: np.ndarray) -> np.ndarray:
     if name == "quintic":
         return -(r**5)
     return -r
-
-
-def _monomials(xy: np.ndarray, degree: int) -> np.ndarray:
-    """Monomials of total degree <= ``degree`` in the (already scaled) coordinates."""
-    cols = [np.ones(xy.shape[:-1])]
-    for d in range(1, degree + 1):
-        for i in range(d + 1):
-            cols.append(xy[..., 0] ** (d - i) * xy[..., 1] ** i)
-    return np.stack(cols, axis=-1)
 
 
 class RBF:
@@ -138,7 +129,7 @@ class RBF:
     def _eig(self):
         """Eigen-decomposition of the kernel on the polynomial null space (cached)."""
         if getattr(self, "_eig_cache", None) is None:
-            p = _monomials((self.xy_ - self.shift_) / self.scale_, self.degree_)
+            p = monomials((self.xy_ - self.shift_) / self.scale_, self.degree_)
             qmat, _ = np.linalg.qr(p, mode="complete")
             q2 = qmat[:, p.shape[1]:]
             k = kernel(self.kernel_, cdist(self.xy_, self.xy_))
@@ -172,25 +163,17 @@ class RBF:
                 # scipy shifts and scales each neighbourhood for the polynomial; the solution is the same.
                 centre = pts.mean(axis=1, keepdims=True)
                 scale = np.maximum(np.max(np.abs(pts - centre), axis=(1, 2), keepdims=True), 1e-12)
-                pm = _monomials((pts - centre) / scale, self.degree_)
+                pm = monomials((pts - centre) / scale, self.degree_)
                 q = pm.shape[-1]
-                dx = pts[:, :, None, 0] - pts[:, None, :, 0]
-                dy = pts[:, :, None, 1] - pts[:, None, :, 1]
-                dx *= dx
-                dy *= dy
-                dx += dy
-                kd = kernel_of_squared(self.kernel_, dx)
-                a = np.zeros((ids.shape[0], k + q, k + q))
-                a[:, :k, k:] = pm
-                a[:, k:, :k] = np.swapaxes(pm, 1, 2)
+                kd = kernel_of_squared(self.kernel_, squared_within(pts))
+                a = bordered_system(kd, pm)
                 rhs = np.zeros((ids.shape[0], k + q))
                 rhs[:, :k] = z[idx]
                 kt = kernel(self.kernel_, np.sqrt(np.sum((pts - t[:, None, :]) ** 2, axis=-1)))
-                pt = _monomials((t[:, None, :] - centre) / scale, self.degree_)[:, 0, :]
+                pt = monomials((t[:, None, :] - centre) / scale, self.degree_)[:, 0, :]
                 diag = np.arange(k)
                 for j, smoothing in enumerate(smoothings):
-                    a[:, :k, :k] = kd
-                    a[:, diag, diag] += smoothing
+                    a[:, diag, diag] = kd[:, diag, diag] + smoothing
                     coef = solve_batched(a, rhs)
                     est = np.einsum("bk,bk->b", coef[:, :k], kt) + np.einsum("bq,bq->b", coef[:, k:], pt)
                     err[j, s:s + _LOCAL_BATCH] = est - z[ids]
@@ -236,12 +219,9 @@ class RBF:
 
     def _loo_direct(self, smoothing: float) -> np.ndarray:
         # Same closed form from an explicit inverse of the bordered system (one n^3 step).
-        p = _monomials((self.xy_ - self.shift_) / self.scale_, self.degree_)
-        n, q = p.shape
-        a = np.zeros((n + q, n + q))
-        a[:n, :n] = kernel(self.kernel_, cdist(self.xy_, self.xy_)) + smoothing * np.eye(n)
-        a[:n, n:] = p
-        a[n:, :n] = p.T
+        p = monomials((self.xy_ - self.shift_) / self.scale_, self.degree_)
+        n = p.shape[0]
+        a = bordered_system(kernel(self.kernel_, cdist(self.xy_, self.xy_)) + smoothing * np.eye(n), p)
         top = np.linalg.inv(a)[:n, :n]
         return -(top @ self.values_) / np.diag(top)
 

@@ -27,7 +27,7 @@ from __future__ import annotations
 import numpy as np
 from scipy.spatial import cKDTree
 
-from mapper.field.linalg import solve_batched
+from mapper.field.linalg import bordered_system, solve_batched, squared_within
 from mapper.field.neighbourhood import NeighbourSets, map_nearest_sets
 
 #: Squares handled together (bounds the per-square matrices to a few tens of MB).
@@ -153,12 +153,7 @@ class _Job:
         centre = b.centre[a:e]
         pts = np.take_along_axis(cpos[a:e], keep[:, :, None], axis=1)
         pm = monomials((pts - centre[:, None, :]) / scale[a:e, None, None], self.degree)  # (nq, width, q)
-        dx = pts[:, :, None, 0] - pts[:, None, :, 0]
-        dy = pts[:, :, None, 1] - pts[:, None, :, 1]
-        dx *= dx
-        dy *= dy
-        dx += dy
-        kk = kernel_of_squared(self.kernel, dx)  # (nq, width, width)
+        kk = kernel_of_squared(self.kernel, squared_within(pts))  # (nq, width, width)
         if s != 0.0:
             diag = np.arange(width)
             kk[:, diag, diag] += s
@@ -196,10 +191,7 @@ def _core_parts(kk: np.ndarray, pm: np.ndarray, z: np.ndarray, c: int):
     complement ``S`` (nq, N, N) and its right-hand side (nq, N), N = cmax - c.
     """
     nq, cmax, q = pm.shape
-    b = np.zeros((nq, c + q, c + q))
-    b[:, :c, :c] = kk[:, :c, :c]
-    b[:, :c, c:] = pm[:, :c]
-    b[:, c:, :c] = np.swapaxes(pm[:, :c], 1, 2)
+    b = bordered_system(kk[:, :c, :c], pm[:, :c])
     en = np.concatenate([kk[:, :c, c:], np.swapaxes(pm[:, c:], 1, 2)], axis=1)  # (nq, c + q, N)
     rhs = np.concatenate([en, np.concatenate([z[:, :c], np.zeros((nq, q))], axis=1)[:, :, None]], axis=2)
     sol = solve_batched(b, rhs)
@@ -228,11 +220,7 @@ def _direct(kk: np.ndarray, pm: np.ndarray, z: np.ndarray, sq: np.ndarray,
     """Weights and polynomial coefficients of sets from their full bordered systems."""
     ns, k = colpos.shape
     q = pm.shape[2]
-    a = np.zeros((ns, k + q, k + q))
-    a[:, :k, :k] = kk[sq[:, None, None], colpos[:, :, None], colpos[:, None, :]]
-    p = pm[sq[:, None], colpos]
-    a[:, :k, k:] = p
-    a[:, k:, :k] = np.swapaxes(p, 1, 2)
+    a = bordered_system(kk[sq[:, None, None], colpos[:, :, None], colpos[:, None, :]], pm[sq[:, None], colpos])
     rhs = np.zeros((ns, k + q))
     rhs[:, :k] = z[sq[:, None], colpos]
     sol = solve_batched(a, rhs)

@@ -78,16 +78,21 @@ def current() -> list[int]:
     return [int(get()) for _, get in _libraries()]
 
 
+def usable_cores() -> int:
+    """Cores this process may run on (its CPU affinity where the system tells it)."""
+    try:
+        return len(os.sched_getaffinity(0))
+    except AttributeError:  # pragma: no cover - not Linux
+        return os.cpu_count() or 1
+
+
 def free_cores() -> int:
     """Cores not kept busy by other programs: usable cores minus the others' load, at least 1.
 
     The others' load is the 1-minute load average less one (the calling thread itself). A
     heuristic of ours: the load average lags, so a core freed a moment ago still counts as busy.
     """
-    try:
-        cores = len(os.sched_getaffinity(0))
-    except AttributeError:  # pragma: no cover - not Linux
-        cores = os.cpu_count() or 1
+    cores = usable_cores()
     try:
         others = max(0.0, os.getloadavg()[0] - 1.0)
     except OSError:  # pragma: no cover

@@ -10,7 +10,7 @@ import mapper.field.neighbourhood as nb
 def _sets(data, targets, k, squares: bool):
     """Each target's set as a sorted row, by the square search or by one tree query per target."""
     original = nb._worth_squares
-    nb._worth_squares = (lambda t, s: True) if squares else (lambda t, s: False)
+    nb._worth_squares = (lambda flat: True) if squares else (lambda flat: False)
     try:
         members, set_of = nb.nearest_sets(data, targets, k)
     finally:
